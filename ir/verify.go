@@ -1,0 +1,288 @@
+package ir
+
+import (
+	"errors"
+	"fmt"
+	"slices"
+)
+
+// Stage says how far a program has been compiled, and so which rules the
+// verifier can check.
+type Stage int
+
+const (
+	// Lowered programs have ops and values; levels and scales are unset.
+	Lowered Stage = iota
+	// Placed programs have every rescale and relinearization in place and a
+	// parameter set, so their depth is final.
+	Placed
+	// Leveled programs carry a level and exact scale on every value.
+	Leveled
+	// Keyed programs also list their exact rotation key set.
+	Keyed
+)
+
+// VerifyGraph checks a graph's shapes and weights.
+func VerifyGraph(g *Graph) error {
+	var errs []error
+	if len(g.Layers) == 0 {
+		errs = append(errs, errors.New("graph has no layers"))
+	}
+	size := g.Input.Size
+	if size <= 0 {
+		errs = append(errs, fmt.Errorf("input size %d", size))
+	}
+	for _, l := range g.Layers {
+		if l.In != size {
+			errs = append(errs, fmt.Errorf("%s: input length %d, previous layer gives %d", l.Name, l.In, size))
+		}
+		switch l.Kind {
+		case Dense:
+			if len(l.Weights) != l.Out || len(l.Bias) != l.Out {
+				errs = append(errs, fmt.Errorf("%s: %d weight rows and %d biases for %d outputs", l.Name, len(l.Weights), len(l.Bias), l.Out))
+			}
+			for _, row := range l.Weights {
+				if len(row) != l.In {
+					errs = append(errs, fmt.Errorf("%s: weight row of %d, want %d", l.Name, len(row), l.In))
+					break
+				}
+			}
+		case Activation:
+			if l.Act == nil {
+				errs = append(errs, fmt.Errorf("%s: activation without a function", l.Name))
+			} else if l.In != l.Out {
+				errs = append(errs, fmt.Errorf("%s: activation changes length %d→%d", l.Name, l.In, l.Out))
+			}
+		default:
+			errs = append(errs, fmt.Errorf("%s: unknown layer kind %q", l.Name, l.Kind))
+		}
+		size = l.Out
+	}
+	return errors.Join(errs...)
+}
+
+// VerifyProgram checks the CKKS rules that hold at the given stage: SSA form,
+// operand kinds and degrees always; levels and exact scales once assigned
+// (operands of an addition share level and scale, a rescale needs a level
+// above 0, a plaintext meets its ciphertext at its level); and the key set
+// once collected. The first few violations are reported, each with its op.
+func VerifyProgram(p *Program, stage Stage) error {
+	var errs []error
+	fail := func(op *Op, format string, args ...any) {
+		if len(errs) < 10 {
+			errs = append(errs, fmt.Errorf("%s: %s", p.FormatOp(op), fmt.Sprintf(format, args...)))
+		}
+	}
+	defined := make([]bool, len(p.Values))
+	degree := make([]int, len(p.Values))
+	used := map[int]bool{}
+	inputs, outputs := 0, 0
+	for _, op := range p.Ops {
+		for _, a := range op.Args {
+			if int(a) < 0 || int(a) >= len(p.Values) || !defined[a] {
+				fail(op, "operand %d used before it is defined", a)
+				return errors.Join(errs...)
+			}
+		}
+		for _, r := range op.Results {
+			if int(r) < 0 || int(r) >= len(p.Values) {
+				fail(op, "result %d out of range", r)
+				return errors.Join(errs...)
+			}
+			if defined[r] {
+				fail(op, "value %%%s defined twice", p.Values[r].Name)
+			}
+			defined[r] = true
+		}
+		wantArgs, wantResults := arity(op)
+		if len(op.Args) != wantArgs || (wantResults >= 0 && len(op.Results) != wantResults) {
+			fail(op, "has %d operands and %d results, want %d and %d", len(op.Args), len(op.Results), wantArgs, wantResults)
+			continue
+		}
+		needConst := op.Kind == OpMulPlain || op.Kind == OpAddPlain || op.Kind == OpPoly
+		if needConst {
+			if op.Const < 0 || op.Const >= len(p.Consts) {
+				fail(op, "no constant")
+				continue
+			}
+			c := p.Consts[op.Const]
+			if (op.Kind == OpPoly) != (c.Kind == Polynomial) {
+				fail(op, "constant %s has the wrong kind", c.Name)
+			}
+			if c.Kind == Vector && len(c.Data) != p.Period {
+				fail(op, "constant %s has %d slots, want the period %d", c.Name, len(c.Data), p.Period)
+			}
+		}
+		// Degrees.
+		d := 1
+		switch op.Kind {
+		case OpRotate, OpRotHoisted, OpPoly, OpRescale:
+			if degree[op.Args[0]] != 1 {
+				fail(op, "needs a degree-1 ciphertext, has degree %d", degree[op.Args[0]])
+			}
+		case OpMul:
+			if degree[op.Args[0]] != 1 || degree[op.Args[1]] != 1 {
+				fail(op, "multiplies a ciphertext of degree above 1")
+			}
+			d = 2
+		case OpAdd:
+			d = max(degree[op.Args[0]], degree[op.Args[1]])
+		case OpMulPlain, OpAddPlain, OpDropLevel:
+			d = degree[op.Args[0]]
+		case OpOutput:
+			if degree[op.Args[0]] != 1 {
+				fail(op, "output must have degree 1")
+			}
+		}
+		if op.Kind == OpRotate || op.Kind == OpRotHoisted {
+			for _, s := range op.Steps {
+				if s <= 0 || s >= p.Period {
+					fail(op, "rotation %d outside (0, period %d)", s, p.Period)
+				}
+				used[s] = true
+			}
+			if op.Kind == OpRotate && len(op.Steps) != 1 {
+				fail(op, "rotate takes one step")
+			}
+			if op.Kind == OpRotHoisted && len(op.Steps) != len(op.Results) {
+				fail(op, "%d steps for %d results", len(op.Steps), len(op.Results))
+			}
+		}
+		for _, r := range op.Results {
+			degree[r] = d
+			if p.Values[r].Degree != d {
+				fail(op, "result %%%s records degree %d, is %d", p.Values[r].Name, p.Values[r].Degree, d)
+			}
+		}
+		switch op.Kind {
+		case OpInput:
+			inputs++
+		case OpOutput:
+			outputs++
+		}
+		if stage >= Leveled {
+			verifyLevels(p, op, fail)
+		}
+	}
+	if inputs != 1 || outputs != 1 {
+		errs = append(errs, fmt.Errorf("program has %d inputs and %d outputs, want one of each", inputs, outputs))
+	}
+	if stage >= Placed && p.Params.LogN == 0 {
+		errs = append(errs, errors.New("no parameters chosen"))
+	}
+	if stage >= Keyed {
+		var want []int
+		for s := range used {
+			want = append(want, s)
+		}
+		slices.Sort(want)
+		if !slices.Equal(want, p.Rotations) {
+			errs = append(errs, fmt.Errorf("rotation keys %v, program uses %v", p.Rotations, want))
+		}
+	}
+	return errors.Join(errs...)
+}
+
+func verifyLevels(p *Program, op *Op, fail func(*Op, string, ...any)) {
+	arg := func(i int) *Value { return p.Values[op.Args[i]] }
+	res := func(i int) *Value { return p.Values[op.Results[i]] }
+	for _, r := range op.Results {
+		v := p.Values[r]
+		if v.Level < 0 || v.Level > p.Params.MaxLevel() {
+			fail(op, "level %d outside [0, %d]", v.Level, p.Params.MaxLevel())
+		}
+		if v.Scale.IsZero() {
+			fail(op, "no scale assigned")
+		}
+	}
+	same := func(a, b *Value, what string) {
+		if a.Level != b.Level {
+			fail(op, "%s at level %d and %d", what, a.Level, b.Level)
+		}
+		if !a.Scale.Equal(b.Scale) {
+			fail(op, "%s at scales %s and %s", what, a.Scale, b.Scale)
+		}
+	}
+	switch op.Kind {
+	case OpInput:
+		if res(0).Level != p.Params.MaxLevel() || !res(0).Scale.Equal(Pow2Scale(p.Params.LogScale)) {
+			fail(op, "fresh ciphertext must be at the top level and the default scale")
+		}
+	case OpRotate, OpRotHoisted, OpRelinearize:
+		for i := range op.Results {
+			same(arg(0), res(i), "operand and result")
+		}
+	case OpAdd:
+		same(arg(0), arg(1), "operands")
+		same(arg(0), res(0), "operand and result")
+	case OpMul:
+		if arg(0).Level != arg(1).Level {
+			fail(op, "operands at level %d and %d", arg(0).Level, arg(1).Level)
+		}
+		if res(0).Level != arg(0).Level || !res(0).Scale.Equal(arg(0).Scale.Mul(arg(1).Scale)) {
+			fail(op, "result must keep the level and multiply the scales")
+		}
+	case OpMulPlain, OpAddPlain:
+		c := p.Consts[op.Const]
+		if c.Level != arg(0).Level {
+			fail(op, "plaintext %s at level %d meets a ciphertext at level %d", c.Name, c.Level, arg(0).Level)
+		}
+		want := arg(0).Scale.Mul(c.Scale)
+		if op.Kind == OpAddPlain {
+			want = arg(0).Scale
+			if !c.Scale.Equal(arg(0).Scale) {
+				fail(op, "plaintext %s at scale %s added to a ciphertext at scale %s", c.Name, c.Scale, arg(0).Scale)
+			}
+		}
+		if res(0).Level != arg(0).Level || !res(0).Scale.Equal(want) {
+			fail(op, "result at level %d scale %s, want %d %s", res(0).Level, res(0).Scale, arg(0).Level, want)
+		}
+	case OpRescale:
+		l := arg(0).Level
+		if l == 0 {
+			fail(op, "rescale at level 0")
+			return
+		}
+		if res(0).Level != l-1 || !res(0).Scale.Equal(arg(0).Scale.Div(Prime(l))) {
+			fail(op, "rescale must drop q%d from the scale and one level", l)
+		}
+	case OpDropLevel:
+		if op.Drop <= 0 || res(0).Level != arg(0).Level-op.Drop || !res(0).Scale.Equal(arg(0).Scale) {
+			fail(op, "drop must lower the level by %d and keep the scale", op.Drop)
+		}
+	case OpPoly:
+		c := p.Consts[op.Const]
+		depth := PolyDepth(len(c.Data) - 1)
+		if res(0).Level != arg(0).Level-depth {
+			fail(op, "polynomial of degree %d consumes %d levels: %d→%d", len(c.Data)-1, depth, arg(0).Level, res(0).Level)
+		}
+		if !res(0).Scale.Equal(Pow2Scale(p.Params.LogScale)) {
+			fail(op, "polynomial result must be at the default scale")
+		}
+	}
+}
+
+// PolyDepth is the number of levels a polynomial of degree d consumes with a
+// baby-step giant-step (Paterson–Stockmeyer) evaluation: ceil(log2(d+1)).
+func PolyDepth(d int) int {
+	depth := 0
+	for (1 << depth) < d+1 {
+		depth++
+	}
+	return depth
+}
+
+func arity(op *Op) (args, results int) {
+	switch op.Kind {
+	case OpInput:
+		return 0, 1
+	case OpOutput:
+		return 1, 0
+	case OpRotHoisted:
+		return 1, -1
+	case OpAdd, OpMul:
+		return 2, 1
+	default:
+		return 1, 1
+	}
+}

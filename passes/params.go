@@ -1,0 +1,221 @@
+package passes
+
+import (
+	"fmt"
+	"math"
+	"slices"
+
+	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/runtime"
+)
+
+// chooseParams picks the CKKS parameters. The depth is the longest chain of
+// rescales and polynomial levels from input to output. The default scale
+// 2^s carries the precision target plus the noise the program amplifies;
+// q0 holds the largest value any ciphertext carries at that scale; each
+// other prime is as large as the scale, so rescaling keeps it; one special
+// prime at least as large as every other prime bounds key-switching noise.
+// The ring degree is the smallest whose 128-bit bound holds log2(QP) and
+// whose slots hold the layout's period. Spec pins override each choice.
+func chooseParams(s *State) error {
+	p := s.Prog
+	g := s.Graph
+	depth := programDepth(p)
+	bounds := valueBounds(g)
+	gain := noiseGain(g, bounds)
+	pin := g.Pin
+	if pin == nil {
+		pin = &ir.ParamPin{}
+	}
+	var why []string
+	why = append(why, fmt.Sprintf("depth %d: the longest chain of rescales and polynomial levels", depth))
+
+	maxBound := 1.0
+	for _, b := range bounds {
+		maxBound = math.Max(maxBound, b)
+	}
+	magnitude := int(math.Ceil(math.Log2(maxBound))) + 1 // sign bit and rounding room
+
+	var chosen *ir.Params
+	for logN := 10; logN <= 15; logN++ {
+		if pin.LogN != 0 && logN != pin.LogN {
+			continue
+		}
+		if 1<<(logN-1) < p.Period {
+			continue
+		}
+		noise := (logN+1)/2 + 6 // fresh, rounding and key-switch noise in slots, in bits (common practice: grows as sqrt(N))
+		logScale := g.Precision + noise + int(math.Ceil(math.Log2(gain)))
+		logScale = min(max(logScale, 20), 60)
+		if pin.LogScale != 0 {
+			logScale = pin.LogScale
+		}
+		q0 := min(logScale+magnitude+2, 61)
+		logQ := make([]int, depth+1)
+		logQ[0] = q0
+		for i := 1; i <= depth; i++ {
+			logQ[i] = logScale
+		}
+		if len(pin.LogQ) > 0 {
+			logQ = slices.Clone(pin.LogQ)
+		}
+		logP := []int{min(slices.Max(logQ)+1, 61)}
+		if len(pin.LogP) > 0 {
+			logP = slices.Clone(pin.LogP)
+		}
+		sum := 0
+		for _, b := range append(slices.Clone(logQ), logP...) {
+			sum += b
+		}
+		bound, inTable := MaxLogQP128[logN]
+		cand := &ir.Params{LogN: logN, LogQ: logQ, LogP: logP, LogScale: logScale, LogQP: sum, SecurityBound: bound}
+		if pin.LogN == 0 && (!inTable || sum > bound) {
+			continue // try the next ring degree
+		}
+		chosen = cand
+		break
+	}
+	if chosen == nil {
+		return fmt.Errorf("no ring degree up to 2^15 holds depth %d at the precision asked (%d bits) within the 128-bit bound; lower the precision, the depth (smaller activation degrees) or pin parameters", depth, g.Precision)
+	}
+	c := chosen
+	if len(c.LogQ)-1 < depth {
+		return fmt.Errorf("%s: params: the pinned chain has %d levels, the model needs %d", pin.Pos, len(c.LogQ)-1, depth)
+	}
+	if 1<<(c.LogN-1) < p.Period {
+		return fmt.Errorf("%s: params: logN %d gives %d slots, the layout needs %d", pin.Pos, c.LogN, 1<<(c.LogN-1), p.Period)
+	}
+	if bound, ok := MaxLogQP128[c.LogN]; !ok || c.LogQP > bound {
+		if !g.Insecure {
+			if !ok {
+				return fmt.Errorf("%s: params: logN %d is outside the security table; say insecure: true to accept unvetted parameters", pin.Pos, c.LogN)
+			}
+			return fmt.Errorf("%s: params: log2(QP) = %d exceeds the 128-bit bound %d for logN %d (%s); say insecure: true to accept it", pin.Pos, c.LogQP, bound, c.LogN, SecuritySource)
+		}
+		c.Insecure = true
+		why = append(why, "INSECURE: the spec accepts parameters above the 128-bit bound")
+	}
+	q, pp, err := runtime.GeneratePrimes(c.LogN, c.LogQ, c.LogP)
+	if err != nil {
+		return fmt.Errorf("params: %w", err)
+	}
+	c.Q, c.P = q, pp
+	why = append(why,
+		fmt.Sprintf("scale 2^%d: %d bits of precision asked, noise and its growth through the model (gain %.3g)", c.LogScale, g.Precision, gain),
+		fmt.Sprintf("q0 of %d bits: values up to %.3g at the default scale", c.LogQ[0], maxBound),
+		fmt.Sprintf("logN %d: smallest ring whose 128-bit bound (%d) holds log2(QP) = %d and %d slots hold the period %d",
+			c.LogN, c.SecurityBound, c.LogQP, 1<<(c.LogN-1), p.Period))
+	c.Why = why
+	p.Params = *c
+	return nil
+}
+
+// programDepth is the number of levels the program consumes.
+func programDepth(p *ir.Program) int {
+	used := make([]int, len(p.Values))
+	depth := 0
+	for _, op := range p.Ops {
+		u := 0
+		for _, a := range op.Args {
+			u = max(u, used[a])
+		}
+		switch op.Kind {
+		case ir.OpRescale:
+			u++
+		case ir.OpPoly:
+			u += ir.PolyDepth(len(p.Consts[op.Const].Data) - 1)
+		case ir.OpDropLevel:
+			u += op.Drop
+		}
+		for _, r := range op.Results {
+			used[r] = u
+		}
+		depth = max(depth, u)
+	}
+	return depth
+}
+
+// valueBounds bounds |value| at the input and after every layer of the
+// (folded) graph by interval arithmetic from the declared input range.
+func valueBounds(g *ir.Graph) []float64 {
+	b := math.Max(math.Abs(g.Input.Min), math.Abs(g.Input.Max))
+	out := []float64{b}
+	for _, l := range g.Layers {
+		switch l.Kind {
+		case ir.Dense:
+			nb := 0.0
+			for i, row := range l.Weights {
+				sum := math.Abs(l.Bias[i])
+				for _, w := range row {
+					sum += math.Abs(w) * b
+				}
+				nb = math.Max(nb, sum)
+			}
+			b = nb
+		case ir.Activation:
+			b = actBound(l.Act, b)
+		}
+		out = append(out, b)
+	}
+	return out
+}
+
+func actBound(a *ir.Act, b float64) float64 {
+	switch {
+	case a.Func == ir.Square:
+		return b * b
+	case a.Basis == ir.Chebyshev:
+		// Inputs are declared to lie in the interval; evaluate on it.
+		var m float64
+		for i := 0; i <= 1024; i++ {
+			m = math.Max(m, math.Abs(ir.EvalPoly(ir.Chebyshev, a.Coeffs, -1+2*float64(i)/1024)))
+		}
+		return m
+	default:
+		var m float64
+		for j, c := range a.Coeffs {
+			m += math.Abs(c) * math.Pow(b, float64(j))
+		}
+		return m
+	}
+}
+
+// noiseGain bounds how much an error added after layer k grows by the
+// output, summed over k: Σ_k Π_{m>k} Lip_m, with Lip the ∞-norm of a dense
+// layer and the largest slope of an activation on its input range.
+func noiseGain(g *ir.Graph, bounds []float64) float64 {
+	lip := make([]float64, len(g.Layers))
+	for i, l := range g.Layers {
+		switch l.Kind {
+		case ir.Dense:
+			for _, row := range l.Weights {
+				var sum float64
+				for _, w := range row {
+					sum += math.Abs(w)
+				}
+				lip[i] = math.Max(lip[i], sum)
+			}
+		case ir.Activation:
+			a := l.Act
+			lo, hi := -bounds[i], bounds[i]
+			if a.Basis == ir.Chebyshev {
+				lo, hi = -1, 1
+			}
+			const n = 1024
+			for k := 0; k < n; k++ {
+				x0 := lo + (hi-lo)*float64(k)/n
+				x1 := lo + (hi-lo)*float64(k+1)/n
+				lip[i] = math.Max(lip[i], math.Abs(a.Apply(x1)-a.Apply(x0))/(x1-x0))
+			}
+		}
+	}
+	var total float64 // k = 0: noise of the fresh input; k = len: noise at the output
+	for k := 0; k <= len(g.Layers); k++ {
+		prod := 1.0
+		for m := k; m < len(g.Layers); m++ {
+			prod *= math.Max(lip[m], 1e-3)
+		}
+		total += prod
+	}
+	return math.Max(total, 1)
+}

@@ -1,0 +1,140 @@
+// Package passes turns a model graph into a ciphertext-level program. The
+// whole compiler is the one ordered table below; each pass is a plain
+// function in a file of its own, never prints, and reports through State.
+package passes
+
+import (
+	"fmt"
+	"slices"
+
+	"github.com/lanthorn/lanthorn/ir"
+)
+
+// Pass is one step of the compiler.
+type Pass struct {
+	Name     string
+	Run      func(*State) error
+	Required bool     // the program is wrong without it; Options.Disable may not name it
+	Stage    ir.Stage // what the verifier can check after it (program passes)
+	Graph    bool     // the pass transforms the graph, before lowering
+	Why      string
+}
+
+// Pipeline is the compiler, in order.
+var Pipeline = []Pass{
+	{Name: "approximate", Run: approximate, Required: true, Graph: true,
+		Why: "replace relu, sigmoid and tanh by Chebyshev interpolants over their declared intervals"},
+	{Name: "fold-interval", Run: foldInterval, Required: true, Graph: true,
+		Why: "map each interpolant's interval onto [-1, 1] inside the preceding linear layer, so no level is spent on it"},
+	{Name: "lower", Run: lower, Required: true, Stage: ir.Lowered,
+		Why: "lay vectors out in slots; dense layers become baby-step giant-step diagonal products, activations polynomials"},
+	{Name: "relinearize", Run: placeRelinearize, Required: true, Stage: ir.Lowered,
+		Why: "bring every ciphertext product back to degree 1 before it is rotated, multiplied or returned"},
+	{Name: "rescale", Run: placeRescale, Required: true, Stage: ir.Lowered,
+		Why: "rescale once per layer, after its products are summed, before the value is multiplied again"},
+	{Name: "params", Run: chooseParams, Required: true, Stage: ir.Placed,
+		Why: "pick the smallest ring degree whose 128-bit bound holds the modulus chain the depth and precision need"},
+	{Name: "levels", Run: assignLevels, Required: true, Stage: ir.Leveled,
+		Why: "assign levels and exact scales; encode plaintexts at the scale of the prime the next rescale drops"},
+	{Name: "keys", Run: collectKeys, Required: true, Stage: ir.Keyed,
+		Why: "the Galois key set is exactly the rotations used"},
+	{Name: "names", Run: nameValues, Required: true, Stage: ir.Keyed,
+		Why: "give every value and constant a unique Go identifier taken from the spec's layer names"},
+}
+
+// Order lists ordering constraints between passes, each with its reason; a
+// test checks that Pipeline honours them.
+var Order = []struct{ Before, After, Why string }{
+	{"approximate", "fold-interval", "the interval map folds into coefficients that exist only after approximation"},
+	{"fold-interval", "lower", "lowering reads the folded weights"},
+	{"relinearize", "rescale", "rescale placement needs degree-1 values"},
+	{"rescale", "params", "the depth is known only once every rescale is placed"},
+	{"params", "levels", "levels count down from the chain's top"},
+	{"levels", "keys", "keys are generated per level of use"},
+}
+
+// Options are the per-run settings of one compilation.
+type Options struct {
+	// Verify runs the IR verifier after every pass (cheap; on by default in
+	// Compile).
+	NoVerify bool
+	// DumpAfter names passes whose output is kept in Report.Dumps.
+	DumpAfter []string
+}
+
+// Report collects what the passes decided, for plans and trace comments.
+type Report struct {
+	Notes []string
+	Dumps map[string]string
+}
+
+// State is what passes read and write.
+type State struct {
+	Source *ir.Graph // the graph as parsed, never modified
+	Model  *ir.Graph // the graph with activations approximated, before folding: the float64 reference
+	Graph  *ir.Graph // the graph the passes transform
+	Prog   *ir.Program
+	Opts   Options
+	Report *Report
+}
+
+func (s *State) note(format string, args ...any) {
+	s.Report.Notes = append(s.Report.Notes, fmt.Sprintf(format, args...))
+}
+
+// Compile runs the pipeline on a graph. The graph is not modified.
+func Compile(g *ir.Graph, opts Options) (*ir.Program, *State, error) {
+	if err := ir.VerifyGraph(g); err != nil {
+		return nil, nil, fmt.Errorf("graph: %w", err)
+	}
+	s := &State{Source: g, Graph: cloneGraph(g), Opts: opts, Report: &Report{Dumps: map[string]string{}}}
+	for _, p := range Pipeline {
+		if err := p.Run(s); err != nil {
+			return nil, s, fmt.Errorf("%s: %w", p.Name, err)
+		}
+		if !opts.NoVerify {
+			if err := verifyAfter(s, p); err != nil {
+				return nil, s, fmt.Errorf("internal error: pass %s broke an IR invariant (a generator bug; please report it): %w", p.Name, err)
+			}
+		}
+		if slices.Contains(opts.DumpAfter, p.Name) {
+			if p.Graph {
+				s.Report.Dumps[p.Name] = s.Graph.String()
+			} else {
+				s.Report.Dumps[p.Name] = s.Prog.String()
+			}
+		}
+	}
+	return s.Prog, s, nil
+}
+
+func verifyAfter(s *State, p Pass) error {
+	if p.Graph {
+		return ir.VerifyGraph(s.Graph)
+	}
+	return ir.VerifyProgram(s.Prog, p.Stage)
+}
+
+func cloneGraph(g *ir.Graph) *ir.Graph {
+	c := *g
+	c.Layers = make([]*ir.Layer, len(g.Layers))
+	for i, l := range g.Layers {
+		lc := *l
+		lc.Weights = make([][]float64, len(l.Weights))
+		for r, row := range l.Weights {
+			lc.Weights[r] = slices.Clone(row)
+		}
+		lc.Bias = slices.Clone(l.Bias)
+		if l.Act != nil {
+			a := *l.Act
+			a.Coeffs = slices.Clone(l.Act.Coeffs)
+			lc.Act = &a
+		}
+		c.Layers[i] = &lc
+	}
+	if g.Pin != nil {
+		pin := *g.Pin
+		c.Pin = &pin
+	}
+	return &c
+}
