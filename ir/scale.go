@@ -113,9 +113,15 @@ func (s Scale) trim() Scale {
 // String prints the scale as 2^40·q6/q7.
 func (s Scale) String() string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "2^%d", s.Pow2)
-	for _, l := range s.Num() {
-		fmt.Fprintf(&b, "·q%d", l)
+	num := s.Num()
+	if s.Pow2 != 0 || len(num) == 0 {
+		fmt.Fprintf(&b, "2^%d", s.Pow2)
+	}
+	for i, l := range num {
+		if i > 0 || b.Len() > 0 {
+			b.WriteString("·")
+		}
+		fmt.Fprintf(&b, "q%d", l)
 	}
 	for _, l := range s.Den() {
 		fmt.Fprintf(&b, "/q%d", l)

@@ -13,6 +13,9 @@ type Stage int
 const (
 	// Lowered programs have ops and values; levels and scales are unset.
 	Lowered Stage = iota
+	// Relinearized programs have every ciphertext product back at degree 1
+	// before it is rotated, multiplied or returned.
+	Relinearized
 	// Placed programs have every rescale and relinearization in place and a
 	// parameter set, so their depth is final.
 	Placed
@@ -115,13 +118,14 @@ func VerifyProgram(p *Program, stage Stage) error {
 		}
 		// Degrees.
 		d := 1
+		needDegree1 := stage >= Relinearized
 		switch op.Kind {
 		case OpRotate, OpRotHoisted, OpPoly, OpRescale:
-			if degree[op.Args[0]] != 1 {
+			if needDegree1 && degree[op.Args[0]] != 1 {
 				fail(op, "needs a degree-1 ciphertext, has degree %d", degree[op.Args[0]])
 			}
 		case OpMul:
-			if degree[op.Args[0]] != 1 || degree[op.Args[1]] != 1 {
+			if needDegree1 && (degree[op.Args[0]] != 1 || degree[op.Args[1]] != 1) {
 				fail(op, "multiplies a ciphertext of degree above 1")
 			}
 			d = 2
@@ -130,7 +134,7 @@ func VerifyProgram(p *Program, stage Stage) error {
 		case OpMulPlain, OpAddPlain, OpDropLevel:
 			d = degree[op.Args[0]]
 		case OpOutput:
-			if degree[op.Args[0]] != 1 {
+			if needDegree1 && degree[op.Args[0]] != 1 {
 				fail(op, "output must have degree 1")
 			}
 		}
@@ -150,7 +154,7 @@ func VerifyProgram(p *Program, stage Stage) error {
 		}
 		for _, r := range op.Results {
 			degree[r] = d
-			if p.Values[r].Degree != d {
+			if needDegree1 && p.Values[r].Degree != d {
 				fail(op, "result %%%s records degree %d, is %d", p.Values[r].Name, p.Values[r].Degree, d)
 			}
 		}
@@ -258,6 +262,25 @@ func verifyLevels(p *Program, op *Op, fail func(*Op, string, ...any)) {
 		}
 		if !res(0).Scale.Equal(Pow2Scale(p.Params.LogScale)) {
 			fail(op, "polynomial result must be at the default scale")
+		}
+	}
+}
+
+// InferDegrees sets every value's degree from the ops: 2 for a ciphertext
+// product, 1 after relinearization, the larger operand's through additions.
+func (p *Program) InferDegrees() {
+	for _, op := range p.Ops {
+		d := 1
+		switch op.Kind {
+		case OpMul:
+			d = 2
+		case OpAdd:
+			d = max(p.Values[op.Args[0]].Degree, p.Values[op.Args[1]].Degree)
+		case OpMulPlain, OpAddPlain, OpDropLevel, OpRescale, OpRotate, OpRotHoisted:
+			d = p.Values[op.Args[0]].Degree
+		}
+		for _, r := range op.Results {
+			p.Values[r].Degree = d
 		}
 	}
 }

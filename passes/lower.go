@@ -202,7 +202,9 @@ func (b *builder) activation(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.
 	if a.Func == ir.Square {
 		info.Kind = "square"
 		info.CtMuls = 1
-		return b.op(ir.OpMul, "Sq", x, x), nil
+		sq := b.op(ir.OpMul, "Sq", x, x)
+		b.p.Values[sq].Degree = 2
+		return sq, nil
 	}
 	if a.Basis == ir.Chebyshev && a.Interval != [2]float64{-1, 1} {
 		return 0, fmt.Errorf("%s: %s: interval not folded", l.Pos, l.Name)

@@ -44,7 +44,7 @@ func chooseParams(s *State) error {
 		if 1<<(logN-1) < p.Period {
 			continue
 		}
-		noise := (logN+1)/2 + 6 // fresh, rounding and key-switch noise in slots, in bits (common practice: grows as sqrt(N))
+		noise := logN/2 + 1 // fresh, rounding and key-switch noise in slots, in bits: it grows as sqrt(N) (common practice); measured by the end-to-end tests
 		logScale := g.Precision + noise + int(math.Ceil(math.Log2(gain)))
 		logScale = min(max(logScale, 20), 60)
 		if pin.LogScale != 0 {

@@ -13,11 +13,10 @@ func placeRelinearize(s *State) error {
 			continue
 		}
 		v := op.Results[0]
-		p.Values[v].Degree = 2
-		nv := insertAfterDef(p, v, ir.OpRelinearize, "Relin", nil)
-		p.Values[nv].Degree = 1
+		insertAfterDef(p, v, ir.OpRelinearize, "Relin", nil)
 		p.Layers[op.Layer].Relins++
 		i++
 	}
+	p.InferDegrees()
 	return nil
 }

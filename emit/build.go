@@ -1,0 +1,17 @@
+package emit
+
+import (
+	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/passes"
+)
+
+// Build compiles a graph and generates its program: the one path that the
+// command line, the demo and the golden tests share.
+func Build(g *ir.Graph, popts passes.Options, opts Options) (Files, *passes.State, error) {
+	prog, st, err := passes.Compile(g, popts)
+	if err != nil {
+		return nil, st, err
+	}
+	files, err := Generate(Input{Prog: prog, Model: st.Model, Notes: st.Report.Notes}, opts)
+	return files, st, err
+}

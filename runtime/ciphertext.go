@@ -1,0 +1,120 @@
+package runtime
+
+import (
+	"crypto/sha256"
+	"errors"
+	"fmt"
+	"math"
+
+	"github.com/tuneinsight/lattigo/v5/core/rlwe"
+)
+
+// Ciphertext is an encrypted slot vector. It remembers the fingerprint of
+// the parameters it was made under, so that a ciphertext of another model
+// is refused instead of computed on. Ciphertexts are never modified after
+// creation: every op returns a new one.
+type Ciphertext struct {
+	ct *rlwe.Ciphertext
+	fp [sha256.Size]byte
+}
+
+// Level returns the ciphertext's level (the number of rescales it can still
+// take), or -1 for a nil ciphertext.
+func (ct *Ciphertext) Level() int {
+	if ct == nil || ct.ct == nil {
+		return -1
+	}
+	return ct.ct.Level()
+}
+
+// Degree returns the ciphertext's degree: 1 normally, 2 after Mul and before
+// Relinearize; -1 for a nil ciphertext.
+func (ct *Ciphertext) Degree() int {
+	if ct == nil || ct.ct == nil {
+		return -1
+	}
+	return ct.ct.Degree()
+}
+
+// Scale returns log2 of the ciphertext's scale, for messages and reports
+// (NaN for a nil ciphertext). Scales are compared exactly inside the
+// evaluator, never through this value.
+func (ct *Ciphertext) Scale() float64 {
+	if ct == nil || ct.ct == nil || ct.ct.MetaData == nil {
+		return math.NaN()
+	}
+	return log2Scale(ct.ct.Scale)
+}
+
+// Plaintext is an encoded (not encrypted) slot vector, at a given level and
+// exact scale, ready to be multiplied with or added to a ciphertext.
+type Plaintext struct {
+	pt    *rlwe.Plaintext
+	fp    [sha256.Size]byte
+	scale Scale
+}
+
+// Level returns the plaintext's level, or -1 for a nil plaintext.
+func (pt *Plaintext) Level() int {
+	if pt == nil || pt.pt == nil {
+		return -1
+	}
+	return pt.pt.Level()
+}
+
+// ExactScale returns the exact scale the plaintext was encoded at.
+func (pt *Plaintext) ExactScale() Scale {
+	if pt == nil {
+		return Scale{}
+	}
+	return pt.scale
+}
+
+// wrap makes a Ciphertext of these parameters.
+func (p *Params) wrap(ct *rlwe.Ciphertext) *Ciphertext {
+	return &Ciphertext{ct: ct, fp: p.fp}
+}
+
+// checkCiphertext verifies that ct belongs to p and is well formed, so that
+// lattigo never sees a ciphertext of another ring degree or level count.
+func (p *Params) checkCiphertext(ct *Ciphertext) error {
+	if ct == nil || ct.ct == nil {
+		return errors.New("nil ciphertext")
+	}
+	if ct.fp != p.fp {
+		return fmt.Errorf("ciphertext for another model (fingerprint %s, want %s)", short(ct.fp[:]), short(p.fp[:]))
+	}
+	c := ct.ct
+	if c.MetaData == nil {
+		return errors.New("ciphertext without metadata")
+	}
+	if c.Degree() < 1 || c.Degree() > 2 {
+		return fmt.Errorf("ciphertext degree %d, want 1 or 2", c.Degree())
+	}
+	if c.Level() < 0 || c.Level() > p.MaxLevel() {
+		return fmt.Errorf("ciphertext level %d, want 0..%d", c.Level(), p.MaxLevel())
+	}
+	for _, v := range c.Value {
+		if v.N() != 1<<p.spec.LogN || v.Level() != c.Level() {
+			return fmt.Errorf("ciphertext polynomial of degree %d at level %d, want %d at level %d", v.N(), v.Level(), 1<<p.spec.LogN, c.Level())
+		}
+	}
+	if c.Scale.Value.Sign() <= 0 || c.Scale.Value.IsInf() {
+		return errors.New("ciphertext scale is not a positive number")
+	}
+	return nil
+}
+
+// checkPlaintext verifies that pt belongs to p.
+func (p *Params) checkPlaintext(pt *Plaintext) error {
+	if pt == nil || pt.pt == nil {
+		return errors.New("nil plaintext")
+	}
+	if pt.fp != p.fp {
+		return fmt.Errorf("plaintext for another model (fingerprint %s, want %s)", short(pt.fp[:]), short(p.fp[:]))
+	}
+	if pt.pt.Level() < 0 || pt.pt.Level() > p.MaxLevel() || pt.pt.Value.N() != 1<<p.spec.LogN {
+		return fmt.Errorf("malformed plaintext (level %d)", pt.pt.Level())
+	}
+	return nil
+}

@@ -1,0 +1,486 @@
+package runtime
+
+import (
+	"bufio"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+)
+
+// ModelInfo describes a generated program to the command line.
+type ModelInfo struct {
+	Name       string
+	InputName  string
+	InputSize  int
+	InputMin   float64
+	InputMax   float64
+	OutputName string
+	OutputSize int
+	Period     int // slot layout period: a vector sits in slots [0, n) of each period
+	Params     ParamSpec
+	Keys       KeyRequest
+	Insecure   bool
+}
+
+// Model is a generated model with its weights encoded.
+type Model interface {
+	// Evaluate runs the model on an encrypted input.
+	Evaluate(ev *Evaluator, x *Ciphertext) (*Ciphertext, error)
+	// Reference runs the same model in float64, activations as evaluated.
+	Reference(x []float64) ([]float64, error)
+	// ReferenceExact runs it with the exact activation functions.
+	ReferenceExact(x []float64) ([]float64, error)
+}
+
+// Key file names inside a key folder made by keygen.
+const (
+	SecretKeyFile = "secret.key"
+	EvalKeysDir   = "eval"
+	EvalKeysFile  = "eval.keys"
+)
+
+// caution is printed by decrypt and selftest.
+const caution = "caution: do not return decrypted values to the party that evaluated: CKKS decryptions leak information about the secret key (Li and Micciancio, 2021). Share only values rounded to the precision you need (decrypt -round)."
+
+// RunCLI is the command line of a generated program: keygen, encrypt, eval,
+// decrypt and selftest. It returns the process exit code.
+func RunCLI(info ModelInfo, load func(*Params) (Model, error), args []string, stdout, stderr io.Writer) int {
+	c := &cli{info: info, load: load, stdout: stdout, stderr: stderr}
+	cmds := []struct {
+		name, help string
+		run        func([]string) error
+	}{
+		{"keygen", "client: make a secret key and the evaluation keys", c.keygen},
+		{"encrypt", "client: encrypt one input vector from a CSV file", c.encrypt},
+		{"eval", "server: evaluate the model on a ciphertext, with evaluation keys only", c.eval},
+		{"decrypt", "client: decrypt a result and print the outputs", c.decrypt},
+		{"selftest", "run keygen, encrypt, eval and decrypt in memory and compare with float64", c.selftest},
+	}
+	usage := func(w io.Writer) {
+		fmt.Fprintf(w, "%s evaluates the %s model on CKKS-encrypted inputs.\n\nUsage: %s COMMAND [flags]\n\nCommands:\n", info.Name, info.Name, info.Name)
+		for _, cmd := range cmds {
+			fmt.Fprintf(w, "  %-9s %s\n", cmd.name, cmd.help)
+		}
+		fmt.Fprintf(w, "\nRun %s COMMAND -h for a command's flags.\n", info.Name)
+		if info.Insecure {
+			fmt.Fprintf(w, "\nINSECURE: this program's parameters exceed the 128-bit security bound.\n")
+		}
+	}
+	if len(args) == 0 {
+		usage(stderr)
+		return 2
+	}
+	if args[0] == "-h" || args[0] == "-help" || args[0] == "--help" || args[0] == "help" {
+		usage(stdout)
+		return 0
+	}
+	for _, cmd := range cmds {
+		if cmd.name != args[0] {
+			continue
+		}
+		if info.Insecure {
+			fmt.Fprintf(stderr, "%s: INSECURE parameters (above the 128-bit bound); do not protect real data with them\n", info.Name)
+		}
+		err := cmd.run(args[1:])
+		switch {
+		case err == nil:
+			return 0
+		case errors.Is(err, flag.ErrHelp):
+			return 0
+		case errors.Is(err, errCLIUsage):
+			return 2
+		default:
+			fmt.Fprintf(stderr, "%s %s: %v\n", info.Name, cmd.name, err)
+			return 1
+		}
+	}
+	fmt.Fprintf(stderr, "%s: unknown command %q\n\n", info.Name, args[0])
+	usage(stderr)
+	return 2
+}
+
+var errCLIUsage = errors.New("usage")
+
+type cli struct {
+	info   ModelInfo
+	load   func(*Params) (Model, error)
+	stdout io.Writer
+	stderr io.Writer
+}
+
+func (c *cli) flags(name, synopsis, doc string) *flag.FlagSet {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	fs.SetOutput(c.stderr)
+	fs.Usage = func() {
+		fmt.Fprintf(c.stderr, "Usage: %s %s %s\n\n%s\n", c.info.Name, name, synopsis, doc)
+		if hasFlags(fs) {
+			fmt.Fprintf(c.stderr, "\nFlags:\n")
+			fs.PrintDefaults()
+		}
+	}
+	return fs
+}
+
+func hasFlags(fs *flag.FlagSet) bool {
+	n := 0
+	fs.VisitAll(func(*flag.Flag) { n++ })
+	return n > 0
+}
+
+func parse(fs *flag.FlagSet, args []string) error {
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			return err
+		}
+		return errCLIUsage
+	}
+	if fs.NArg() > 0 {
+		fmt.Fprintf(fs.Output(), "unexpected argument %q\n", fs.Arg(0))
+		fs.Usage()
+		return errCLIUsage
+	}
+	return nil
+}
+
+func required(fs *flag.FlagSet, names ...string) error {
+	for _, n := range names {
+		if fs.Lookup(n).Value.String() == "" {
+			fmt.Fprintf(fs.Output(), "flag -%s is required\n", n)
+			fs.Usage()
+			return errCLIUsage
+		}
+	}
+	return nil
+}
+
+func (c *cli) params() (*Params, error) {
+	p, err := NewParams(c.info.Params)
+	if err != nil {
+		return nil, fmt.Errorf("parameters: %w", err)
+	}
+	return p, nil
+}
+
+func (c *cli) keygen(args []string) error {
+	fs := c.flags("keygen", "-dir DIR", "Makes DIR/"+SecretKeyFile+" (the secret key, mode 0600: keep it on the client) and\nDIR/"+EvalKeysDir+"/"+EvalKeysFile+" (the evaluation keys: send the "+EvalKeysDir+" folder to the server).")
+	dir := fs.String("dir", "", "key `folder` to create")
+	force := fs.Bool("force", false, "overwrite an existing secret key")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if err := required(fs, "dir"); err != nil {
+		return err
+	}
+	skPath := filepath.Join(*dir, SecretKeyFile)
+	if _, err := os.Stat(skPath); err == nil && !*force {
+		return fmt.Errorf("%s exists; keys encrypted under it would become unreadable if it were replaced (use -force to overwrite)", skPath)
+	}
+	p, err := c.params()
+	if err != nil {
+		return err
+	}
+	start := time.Now()
+	sk, evk, err := GenerateKeys(p, c.info.Keys)
+	if err != nil {
+		return err
+	}
+	if err := os.MkdirAll(filepath.Join(*dir, EvalKeysDir), 0o700); err != nil {
+		return err
+	}
+	if err := WriteSecretKey(skPath, p, sk); err != nil {
+		return err
+	}
+	evPath := filepath.Join(*dir, EvalKeysDir, EvalKeysFile)
+	if err := WriteEvaluationKeys(evPath, p, evk); err != nil {
+		return err
+	}
+	fmt.Fprintf(c.stdout, "wrote %s (secret, keep on the client) and %s (%.1f MB, %d rotation keys) in %s\n",
+		skPath, evPath, float64(evk.Size())/1e6, len(c.info.Keys.Rotations), time.Since(start).Round(time.Millisecond))
+	return nil
+}
+
+func (c *cli) encrypt(args []string) error {
+	fs := c.flags("encrypt", "-keys DIR -in FILE.csv -out FILE.ct",
+		fmt.Sprintf("Encrypts one %s vector: %d comma-separated numbers in [%g, %g] on a line.", c.info.InputName, c.info.InputSize, c.info.InputMin, c.info.InputMax))
+	keys := fs.String("keys", "", "key `folder` made by keygen (reads its "+SecretKeyFile+")")
+	in := fs.String("in", "", "input `CSV` file; one vector per line")
+	out := fs.String("out", "", "ciphertext `file` to write")
+	row := fs.Int("row", 0, "which line of the CSV to encrypt, from 1 (needed when it has several)")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if err := required(fs, "keys", "in", "out"); err != nil {
+		return err
+	}
+	rows, err := ReadCSV(*in, c.info.InputSize)
+	if err != nil {
+		return err
+	}
+	if *row == 0 && len(rows) > 1 {
+		return fmt.Errorf("%s has %d vectors; choose one with -row", *in, len(rows))
+	}
+	if *row == 0 {
+		*row = 1
+	}
+	if *row < 1 || *row > len(rows) {
+		return fmt.Errorf("%s has %d vectors; -row %d is out of range", *in, len(rows), *row)
+	}
+	x := rows[*row-1]
+	if err := c.checkRange(x); err != nil {
+		return fmt.Errorf("%s:%d: %w", *in, *row, err)
+	}
+	p, err := c.params()
+	if err != nil {
+		return err
+	}
+	sk, err := ReadSecretKey(filepath.Join(*keys, SecretKeyFile), p)
+	if err != nil {
+		return err
+	}
+	ct, err := Encrypt(p, sk, x, c.info.Period)
+	if err != nil {
+		return err
+	}
+	return WriteCiphertext(*out, p, ct)
+}
+
+// checkRange refuses inputs outside the declared range: the model's
+// polynomial approximations hold only there.
+func (c *cli) checkRange(x []float64) error {
+	for i, v := range x {
+		if v < c.info.InputMin || v > c.info.InputMax {
+			return fmt.Errorf("value %g in column %d is outside the model's input range [%g, %g]", v, i+1, c.info.InputMin, c.info.InputMax)
+		}
+	}
+	return nil
+}
+
+func (c *cli) eval(args []string) error {
+	fs := c.flags("eval", "-keys DIR -in FILE.ct -out FILE.ct",
+		"Evaluates the model on an encrypted input with the evaluation keys only.\nRefuses a key folder that holds a secret key: the server must never have it.")
+	keys := fs.String("keys", "", "`folder` holding "+EvalKeysFile+" (the "+EvalKeysDir+" folder made by keygen)")
+	in := fs.String("in", "", "input ciphertext `file`")
+	out := fs.String("out", "", "result ciphertext `file` to write")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if err := required(fs, "keys", "in", "out"); err != nil {
+		return err
+	}
+	if _, err := os.Stat(filepath.Join(*keys, SecretKeyFile)); err == nil {
+		return fmt.Errorf("%s holds a secret key (%s): the evaluating party must not have it; pass the %s folder only", *keys, SecretKeyFile, EvalKeysDir)
+	}
+	p, err := c.params()
+	if err != nil {
+		return err
+	}
+	evk, err := ReadEvaluationKeys(filepath.Join(*keys, EvalKeysFile), p, c.info.Keys)
+	if err != nil {
+		return err
+	}
+	ct, err := ReadCiphertext(*in, p)
+	if err != nil {
+		return err
+	}
+	start := time.Now()
+	m, err := c.load(p)
+	if err != nil {
+		return err
+	}
+	prep := time.Since(start)
+	start = time.Now()
+	res, err := m.Evaluate(NewEvaluator(p, evk), ct)
+	if err != nil {
+		return fmt.Errorf("%s: %w", *in, err)
+	}
+	took := time.Since(start)
+	if err := WriteCiphertext(*out, p, res); err != nil {
+		return err
+	}
+	fmt.Fprintf(c.stderr, "evaluated in %s (weights encoded in %s); wrote %s\n", took.Round(time.Millisecond), prep.Round(time.Millisecond), *out)
+	return nil
+}
+
+func (c *cli) decrypt(args []string) error {
+	fs := c.flags("decrypt", "-keys DIR -in FILE.ct",
+		fmt.Sprintf("Decrypts a result and prints the %d %s values, comma-separated.", c.info.OutputSize, c.info.OutputName))
+	keys := fs.String("keys", "", "key `folder` made by keygen (reads its "+SecretKeyFile+")")
+	in := fs.String("in", "", "result ciphertext `file`")
+	round := fs.Int("round", -1, "round to this many `digits` after the point (for results that will be shared)")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if err := required(fs, "keys", "in"); err != nil {
+		return err
+	}
+	p, err := c.params()
+	if err != nil {
+		return err
+	}
+	sk, err := ReadSecretKey(filepath.Join(*keys, SecretKeyFile), p)
+	if err != nil {
+		return err
+	}
+	ct, err := ReadCiphertext(*in, p)
+	if err != nil {
+		return err
+	}
+	y, err := Decrypt(p, sk, ct, c.info.OutputSize)
+	if err != nil {
+		return fmt.Errorf("%s: %w", *in, err)
+	}
+	fmt.Fprintln(c.stderr, caution)
+	fmt.Fprintln(c.stdout, FormatValues(y, *round))
+	return nil
+}
+
+// FormatValues prints values comma-separated, rounded to digits after the
+// point when digits >= 0, else in full precision.
+func FormatValues(y []float64, digits int) string {
+	parts := make([]string, len(y))
+	for i, v := range y {
+		if digits >= 0 {
+			s := math.Pow(10, float64(digits))
+			parts[i] = strconv.FormatFloat(math.Round(v*s)/s, 'f', digits, 64)
+		} else {
+			parts[i] = strconv.FormatFloat(v, 'g', 12, 64)
+		}
+	}
+	return strings.Join(parts, ",")
+}
+
+func (c *cli) selftest(args []string) error {
+	fs := c.flags("selftest", "[-n N] [-seed S]",
+		"Makes keys in memory, encrypts random inputs from the declared range,\nevaluates, decrypts and compares with the float64 reference.")
+	n := fs.Int("n", 3, "number of random inputs")
+	seed := fs.Uint64("seed", 1, "seed of the random inputs")
+	if err := parse(fs, args); err != nil {
+		return err
+	}
+	if *n < 1 {
+		return fmt.Errorf("-n must be at least 1")
+	}
+	p, err := c.params()
+	if err != nil {
+		return err
+	}
+	start := time.Now()
+	sk, evk, err := GenerateKeys(p, c.info.Keys)
+	if err != nil {
+		return err
+	}
+	keygen := time.Since(start)
+	start = time.Now()
+	m, err := c.load(p)
+	if err != nil {
+		return err
+	}
+	prep := time.Since(start)
+	ev := NewEvaluator(p, evk)
+	r := rand.New(rand.NewPCG(*seed, 0x6c616e74686f726e))
+	var worst, worstExact Precision
+	var times []time.Duration
+	for i := 0; i < *n; i++ {
+		x := make([]float64, c.info.InputSize)
+		for j := range x {
+			x[j] = c.info.InputMin + r.Float64()*(c.info.InputMax-c.info.InputMin)
+		}
+		ct, err := Encrypt(p, sk, x, c.info.Period)
+		if err != nil {
+			return err
+		}
+		t0 := time.Now()
+		res, err := m.Evaluate(ev, ct)
+		if err != nil {
+			return fmt.Errorf("input %d: %w", i+1, err)
+		}
+		times = append(times, time.Since(t0))
+		y, err := Decrypt(p, sk, res, c.info.OutputSize)
+		if err != nil {
+			return err
+		}
+		want, err := m.Reference(x)
+		if err != nil {
+			return err
+		}
+		exact, err := m.ReferenceExact(x)
+		if err != nil {
+			return err
+		}
+		worst = worse(worst, Compare(want, y))
+		worstExact = worse(worstExact, Compare(exact, y))
+	}
+	slices.Sort(times)
+	median := times[len(times)/2]
+	w := bufio.NewWriter(c.stdout)
+	fmt.Fprintf(w, "%s selftest: logN %d, %d levels, %d rotation keys, evaluation keys %.1f MB\n",
+		c.info.Name, p.Spec().LogN, p.MaxLevel(), len(c.info.Keys.Rotations), float64(evk.Size())/1e6)
+	fmt.Fprintf(w, "  precision vs float64 model (as encrypted):   max abs error %.3g (%.1f bits) over %d inputs\n", worst.MaxAbsErr, worst.Bits, *n)
+	fmt.Fprintf(w, "  deviation from exact activations:            max abs error %.3g (%.1f bits)\n", worstExact.MaxAbsErr, worstExact.Bits)
+	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d (keygen %s, weight encoding %s)\n",
+		median.Round(100*time.Microsecond), len(times), keygen.Round(time.Millisecond), prep.Round(time.Millisecond))
+	if err := w.Flush(); err != nil {
+		return err
+	}
+	if math.IsNaN(worst.MaxAbsErr) || worst.MaxAbsErr > 1e-2 {
+		return fmt.Errorf("encrypted results differ from the float64 reference by %.3g", worst.MaxAbsErr)
+	}
+	return nil
+}
+
+// ReadCSV reads vectors of n numbers, one per line; blank lines and lines
+// starting with # are skipped. Errors name the file and line.
+func ReadCSV(path string, n int) ([][]float64, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	var rows [][]float64
+	sc := bufio.NewScanner(io.LimitReader(f, 64<<20))
+	sc.Buffer(make([]byte, 0, 64<<10), 16<<20)
+	line := 0
+	for sc.Scan() {
+		line++
+		text := strings.TrimSpace(sc.Text())
+		if text == "" || strings.HasPrefix(text, "#") {
+			continue
+		}
+		fields := strings.Split(text, ",")
+		if len(fields) != n {
+			return nil, fmt.Errorf("%s:%d: %d values, want %d", path, line, len(fields), n)
+		}
+		row := make([]float64, n)
+		for i, s := range fields {
+			v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+				return nil, fmt.Errorf("%s:%d: column %d: %q is not a finite number", path, line, i+1, strings.TrimSpace(s))
+			}
+			row[i] = v
+		}
+		rows = append(rows, row)
+	}
+	if err := sc.Err(); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if len(rows) == 0 {
+		return nil, fmt.Errorf("%s: no input vectors", path)
+	}
+	return rows, nil
+}
+
+func worse(a, b Precision) Precision {
+	if b.MaxAbsErr > a.MaxAbsErr || math.IsNaN(b.MaxAbsErr) {
+		return b
+	}
+	return a
+}

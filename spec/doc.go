@@ -1,0 +1,97 @@
+// Package spec reads lanthorn model specs: a YAML file that describes a model
+// and names its trained weights. It checks the spec against the schema and
+// the weights against the layer shapes, and produces an ir.Graph.
+//
+// # Schema version 1
+//
+// A spec is one YAML document, a mapping whose first key is the schema
+// version. An example, with every key:
+//
+//	lanthorn: 1                 # schema version: required, the first key
+//	model: gearbox              # required: [a-z][a-z0-9_]*, not a Go keyword
+//	description: vibration risk from ten sensor readings   # optional, ignored
+//	input:
+//	  name: features            # optional, default "input"
+//	  size: 10                  # required, >= 1
+//	  range: [-4, 4]            # required: every input value lies in [min, max]
+//	output:
+//	  name: risk                # optional, default "output"
+//	precision: 20               # optional: bits of absolute precision wanted on outputs, 4..50, default 20
+//	insecure: false             # optional: allow parameters past the 128-bit security bound, default false
+//	params:                     # optional: pin CKKS parameters; each key optional
+//	  logN: 14                  # ring degree log2, 10..17
+//	  logQ: [50, 35, 35]        # bits of each ciphertext prime, q0 first, each 20..61
+//	  logP: [50]                # bits of each key-switching prime, each 20..61
+//	  logScale: 35              # log2 of the default scale, 16..60
+//	layers:                     # required, at least one, in evaluation order
+//	  - kind: dense
+//	    name: dense1            # optional, see below
+//	    out: 16                 # required, >= 1
+//	    weights: weights/dense1_w.npy   # required: shape [out, in]
+//	    bias: weights/dense1_b.npy      # optional (zeros): shape [out]
+//	  - kind: activation
+//	    function: tanh          # square | poly | relu | sigmoid | tanh
+//	    interval: [-4, 4]       # the inputs of the activation lie in [a, b]
+//	    degree: 7               # optional: degree of the interpolant, 1..63
+//	  - kind: dense
+//	    out: 2
+//	    weights:                # inline: out rows of in numbers
+//	      - [0.5, -0.25, 0.125, 1, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 2]
+//	      - [0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, -1]
+//	    bias: [0.1, -0.1]       # inline: out numbers
+//	  - kind: activation
+//	    function: poly
+//	    coefficients: [0, 0.5, 0.125]   # c0 + c1 x + c2 x^2
+//
+// Names (model, input and output names, layer names) are identifiers:
+// letters, digits and underscores, not starting with a digit; the model name
+// is lower case. Numbers are YAML integers or floats and must be finite.
+//
+// # Layers
+//
+// A dense layer computes W x + b. Its input size, in, is the output size of
+// the layer before it (input.size for the first layer). weights is either
+// the path of a .npy file of shape [out, in] or an inline list of out rows
+// of in numbers; bias is a .npy file of shape [out] or an inline list of out
+// numbers, and zeros when absent. Paths are relative to the spec file's
+// directory, use forward slashes, and may not leave that directory.
+//
+// An activation layer applies a function to every element; its size is that
+// of the layer before it. The functions:
+//
+//   - square: x², evaluated exactly. interval is optional (a declared
+//     input range); degree and coefficients are not allowed.
+//   - poly: the polynomial c0 + c1 x + c2 x² + ... with the given
+//     coefficients (at least two, the last nonzero), evaluated exactly.
+//     interval is optional; degree is not allowed (the coefficients give it).
+//   - relu, sigmoid, tanh: replaced by a Chebyshev interpolant of the given
+//     degree on interval, which is required and must hold every input the
+//     activation sees: outside it the approximation is meaningless. The
+//     default degree is 15 for relu and 7 for sigmoid and tanh.
+//
+// A layer without a name gets its kind word and its number among the layers
+// of that kind, counting named ones: dense1, dense2, ... for dense layers and
+// act1, act2, ... for activations. Layer names must be unique.
+//
+// # Weight files
+//
+// .npy files are NumPy's format, versions 1.0, 2.0 and 3.0, as written by
+// numpy.save: little-endian float64, float32, int64 or int32 ('<f8', '<f4',
+// '<i8', '<i4'; also smaller integers and bool), C or Fortran order. An
+// array may have at most MaxElements elements, and so may an inline list; a
+// spec file may be at most MaxSpecBytes long.
+//
+// # Errors
+//
+// Parse and Load report every problem they find, not only the first, as an
+// ErrorList sorted by position. Each entry names the spec file, line and
+// column, says what was found and what is expected, and for a weight file
+// points at the key that names the file:
+//
+//	gearbox.yaml:14:7: unknown key "wieghts" in dense layer; expected one of: name, out, weights, bias
+//	gearbox.yaml:5:9: input.size: found string "ten", expected an integer >= 1
+//	gearbox.yaml:22:14: dense2: weights shape [16 32], want [8 16] (out × in)
+//
+// Unknown and duplicate keys are errors, and so is any schema version other
+// than 1. YAML anchors and aliases may be used; merge keys (<<) may not.
+package spec

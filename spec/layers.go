@@ -1,0 +1,213 @@
+package spec
+
+import (
+	"fmt"
+	"strconv"
+
+	"gopkg.in/yaml.v3"
+
+	"github.com/lanthorn/lanthorn/ir"
+)
+
+var (
+	denseKeys  = []string{"name", "out", "weights", "bias"}
+	actKeys    = []string{"name", "function", "interval", "degree", "coefficients"}
+	actFuncs   = []ir.ActFunc{ir.Square, ir.Poly, ir.ReLU, ir.Sigmoid, ir.Tanh}
+	actNames   = "square, poly, relu, sigmoid or tanh"
+	defaultDeg = map[ir.ActFunc]int{ir.ReLU: 15, ir.Sigmoid: 7, ir.Tanh: 7}
+)
+
+// layers decodes the layer list; size is the input size or unknownSize.
+func (p *parser) layers(n *yaml.Node, size int) []*ir.Layer {
+	if n.Kind != yaml.SequenceNode {
+		p.errorf(n, "layers: found %s, expected a list of layers", describe(n))
+		return nil
+	}
+	if len(n.Content) == 0 {
+		p.errorf(n, "layers: the list is empty; a model needs at least one layer")
+		return nil
+	}
+	if !p.charge(len(n.Content), n) {
+		return nil
+	}
+	var out []*ir.Layer
+	names := map[string]ir.Pos{}
+	count := map[ir.LayerKind]int{}
+	for i, c := range n.Content {
+		if p.exhausted {
+			return nil
+		}
+		item := resolve(c)
+		where := fmt.Sprintf("layers[%d]", i)
+		if item.Kind != yaml.MappingNode {
+			p.errorf(item, "%s: found %s, expected a layer (a mapping with a kind)", where, describe(item))
+			size = unknownSize
+			continue
+		}
+		f := p.mapping(item, "in "+where)
+
+		var kind ir.LayerKind
+		if k, ok := f.get("kind"); !ok {
+			p.errorf(item, "%s: missing required key \"kind\" (dense or activation)", where)
+		} else if s, ok := p.str(k.val, where+".kind", "dense or activation"); ok {
+			switch ir.LayerKind(s) {
+			case ir.Dense, ir.Activation:
+				kind = ir.LayerKind(s)
+			default:
+				p.errorf(k.val, "%s.kind: found string %q, expected dense or activation", where, s)
+			}
+		}
+
+		// The default name counts the layers of its kind-word so far, named
+		// or not: the second dense layer is dense2 whatever the first is
+		// called.
+		name := where
+		if kind != "" {
+			count[kind]++
+			word := "dense"
+			if kind == ir.Activation {
+				word = "act"
+			}
+			name = word + strconv.Itoa(count[kind])
+		}
+		namePos := p.pos(item)
+		if nm, ok := f.get("name"); ok {
+			namePos = p.pos(nm.val)
+			if s, ok := p.ident(nm.val, where+".name", identName, identExpect); ok {
+				name = s
+			}
+		}
+		if kind != "" {
+			if first, dup := names[name]; dup {
+				p.errs = append(p.errs, &Error{Pos: namePos, Msg: fmt.Sprintf("duplicate layer name %q (first used at %s)", name, first)})
+			} else {
+				names[name] = namePos
+			}
+		}
+
+		l := &ir.Layer{Name: name, Kind: kind, Pos: p.pos(item), In: size}
+		switch kind {
+		case ir.Dense:
+			p.unknown(f, "in dense layer", append([]string{"kind"}, denseKeys...), denseKeys)
+			size = p.dense(item, f, l)
+		case ir.Activation:
+			p.unknown(f, "in activation layer", append([]string{"kind"}, actKeys...), actKeys)
+			l.Out = size
+			p.activation(item, f, l)
+		default:
+			size = unknownSize
+		}
+		out = append(out, l)
+	}
+	return out
+}
+
+// dense decodes a dense layer whose In is set (maybe unknownSize) and
+// returns its output size, or unknownSize.
+func (p *parser) dense(item *yaml.Node, f *fields, l *ir.Layer) int {
+	out := unknownSize
+	if fl, ok := f.get("out"); ok {
+		if v, ok := p.integer(fl.val, l.Name+": out", 1, MaxElements, "an integer >= 1"); ok {
+			out = v
+		}
+	} else {
+		p.errorf(item, "%s: missing required key \"out\" (the layer's output size)", l.Name)
+	}
+	l.Out = out
+	if fl, ok := f.get("weights"); ok {
+		l.Weights = p.matrix(fl.val, l.Name, out, l.In)
+	} else {
+		p.errorf(item, "%s: missing required key \"weights\" (a .npy file or a list of %s)", l.Name, listOf(out, "rows"))
+	}
+	if fl, ok := f.get("bias"); ok {
+		l.Bias = p.vector(fl.val, l.Name, out)
+	} else if out > 0 {
+		l.Bias = make([]float64, out)
+	}
+	return out
+}
+
+// listOf writes "16 rows", or just "rows" when the count is unknown.
+func listOf(n int, things string) string {
+	if n == unknownSize {
+		return things
+	}
+	return strconv.Itoa(n) + " " + things
+}
+
+// sizeWord writes a size for messages, "?" when unknown.
+func sizeWord(n int) string {
+	if n == unknownSize {
+		return "?"
+	}
+	return strconv.Itoa(n)
+}
+
+// activation decodes an activation layer.
+func (p *parser) activation(item *yaml.Node, f *fields, l *ir.Layer) {
+	act := &ir.Act{}
+	l.Act = act
+	valid := false
+	if fl, ok := f.get("function"); ok {
+		if s, ok := p.str(fl.val, l.Name+": function", actNames); ok {
+			for _, fn := range actFuncs {
+				if ir.ActFunc(s) == fn {
+					act.Func, valid = fn, true
+				}
+			}
+			if !valid {
+				p.errorf(fl.val, "%s: function: found string %q, expected %s", l.Name, s, actNames)
+			}
+		}
+	} else {
+		p.errorf(item, "%s: missing required key \"function\" (%s)", l.Name, actNames)
+	}
+	approx := act.Func == ir.ReLU || act.Func == ir.Sigmoid || act.Func == ir.Tanh
+
+	if fl, ok := f.get("interval"); ok {
+		act.Interval, _ = p.interval(fl.val, l.Name+": interval", "a, b")
+	} else if approx {
+		p.errorf(item, "%s: missing required key \"interval\": %s is approximated by a polynomial on an interval [a, b] that holds all its inputs, e.g. interval: [-4, 4]", l.Name, act.Func)
+	}
+
+	if fl, ok := f.get("degree"); ok {
+		switch act.Func {
+		case ir.Square:
+			p.errorf(fl.key, "%s: degree is only for relu, sigmoid and tanh; square is exactly degree 2", l.Name)
+		case ir.Poly:
+			p.errorf(fl.key, "%s: degree is only for relu, sigmoid and tanh; poly's degree follows from its coefficients", l.Name)
+		default:
+			act.Degree, _ = p.integer(fl.val, l.Name+": degree", 1, 63, "an integer from 1 to 63")
+		}
+	} else if approx {
+		act.Degree = defaultDeg[act.Func]
+	}
+
+	if fl, ok := f.get("coefficients"); ok {
+		if valid && act.Func != ir.Poly {
+			p.errorf(fl.key, "%s: coefficients are only for function: poly (%s has none to give)", l.Name, act.Func)
+		} else if c := p.coefficients(fl.val, l.Name); c != nil {
+			act.Basis, act.Coeffs = ir.Monomial, c
+		}
+	} else if act.Func == ir.Poly {
+		p.errorf(item, "%s: missing required key \"coefficients\": poly needs [c0, c1, ...] for c0 + c1 x + c2 x^2 + ...", l.Name)
+	}
+}
+
+// coefficients reads a poly's monomial coefficients.
+func (p *parser) coefficients(n *yaml.Node, name string) []float64 {
+	what := name + ": coefficients"
+	if n.Kind != yaml.SequenceNode || len(n.Content) < 2 {
+		p.errorf(n, "%s: found %s, expected a list of at least two numbers [c0, c1, ...]", what, describe(n))
+		return nil
+	}
+	c, ok := p.inlineNumbers(n.Content, n, what, nil)
+	if !ok {
+		return nil
+	}
+	if c[len(c)-1] == 0 {
+		p.errorf(resolve(n.Content[len(n.Content)-1]), "%s: the last coefficient is 0; it must be nonzero (it sets the degree), so drop trailing zeros", what)
+		return nil
+	}
+	return c
+}
