@@ -134,6 +134,7 @@ func (e *emitter) params() ([]byte, error) {
 			{"Params", jen.Id("ParamSpec")},
 			{"Keys", jen.Id("Keys")},
 			{"Insecure", jen.Lit(pr.Insecure)},
+			{"Precision", jen.Lit(e.in.Model.Precision)},
 		}))),
 	)
 	return render(f)

@@ -90,7 +90,7 @@ func Compile(g *ir.Graph, opts Options) (*ir.Program, *State, error) {
 	s := &State{Source: g, Graph: cloneGraph(g), Opts: opts, Report: &Report{Dumps: map[string]string{}}}
 	for _, p := range Pipeline {
 		if err := p.Run(s); err != nil {
-			return nil, s, fmt.Errorf("%s: %w", p.Name, err)
+			return nil, s, err // passes' errors lead with the spec position they concern
 		}
 		if !opts.NoVerify {
 			if err := verifyAfter(s, p); err != nil {

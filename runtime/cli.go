@@ -29,6 +29,7 @@ type ModelInfo struct {
 	Params     ParamSpec
 	Keys       KeyRequest
 	Insecure   bool
+	Precision  int // bits of absolute precision the planner sized the parameters for
 }
 
 // Model is a generated model with its weights encoded.
@@ -424,15 +425,16 @@ func (c *cli) selftest(args []string) error {
 	w := bufio.NewWriter(c.stdout)
 	fmt.Fprintf(w, "%s selftest: logN %d, %d levels, %d rotation keys, evaluation keys %.1f MB\n",
 		c.info.Name, p.Spec().LogN, p.MaxLevel(), len(c.info.Keys.Rotations), float64(evk.Size())/1e6)
-	fmt.Fprintf(w, "  precision vs float64 model (as encrypted):   max abs error %.3g (%.1f bits) over %d inputs\n", worst.MaxAbsErr, worst.Bits, *n)
+	fmt.Fprintf(w, "  precision vs float64 model (as encrypted):   max abs error %.3g (%.1f bits; target %d) over %d inputs\n", worst.MaxAbsErr, worst.Bits, c.info.Precision, *n)
 	fmt.Fprintf(w, "  deviation from exact activations:            max abs error %.3g (%.1f bits)\n", worstExact.MaxAbsErr, worstExact.Bits)
 	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d (keygen %s, weight encoding %s)\n",
 		median.Round(100*time.Microsecond), len(times), keygen.Round(time.Millisecond), prep.Round(time.Millisecond))
 	if err := w.Flush(); err != nil {
 		return err
 	}
-	if math.IsNaN(worst.MaxAbsErr) || worst.MaxAbsErr > 1e-2 {
-		return fmt.Errorf("encrypted results differ from the float64 reference by %.3g", worst.MaxAbsErr)
+	if math.IsNaN(worst.MaxAbsErr) || worst.Bits < float64(c.info.Precision) {
+		return fmt.Errorf("encrypted results differ from the float64 reference by %.3g (%.1f bits); the parameters were sized for %d bits",
+			worst.MaxAbsErr, worst.Bits, c.info.Precision)
 	}
 	return nil
 }

@@ -63,11 +63,7 @@ func buildSpec(path string, popts passes.Options, opts emit.Options) (emit.Files
 	if err != nil {
 		return nil, nil, err
 	}
-	files, st, err := emit.Build(g, popts, opts)
-	if err != nil {
-		return nil, st, fmt.Errorf("%s: %w", filepath.Base(path), err)
-	}
-	return files, st, nil
+	return emit.Build(g, popts, opts)
 }
 
 // writeFiles writes the program into dir: each changed file to a temporary
