@@ -105,10 +105,7 @@ func parseFlags(fs *flag.FlagSet, args []string, stderr io.Writer) ([]string, er
 
 func runVersion(args []string, stdout, stderr io.Writer) error {
 	fs := flag.NewFlagSet("version", flag.ContinueOnError)
-	fs.Usage = func() { fmt.Fprintf(stderr, "Usage: lanthorn version
-
-Prints the generator version.
-") }
+	fs.Usage = func() { fmt.Fprintf(stderr, "Usage: lanthorn version\n\nPrints the generator version.\n") }
 	if _, err := parseFlags(fs, args, stderr); err != nil {
 		return err
 	}
