@@ -36,7 +36,7 @@ type goldenCase struct {
 
 // cases lists every spec under testdata in sorted order; those under
 // testdata/bad are meant to fail.
-func cases(t *testing.T) []goldenCase {
+func cases(t testing.TB) []goldenCase {
 	var out []goldenCase
 	err := filepath.WalkDir(filepath.Join(repoRoot, "testdata"), func(path string, d fs.DirEntry, err error) error {
 		if err != nil {

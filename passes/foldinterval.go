@@ -20,7 +20,7 @@ func foldInterval(s *State) error {
 			continue
 		}
 		lo, hi := a.Interval[0], a.Interval[1]
-		alpha, beta := 2/(hi-lo), -(lo+hi)/(hi-lo)
+		alpha, beta := 2/(hi-lo), -(lo+hi)/(hi-lo)+0 // +0 turns -0 into 0 for the notes
 		if i > 0 && s.Graph.Layers[i-1].Kind == ir.Dense {
 			prev := s.Graph.Layers[i-1]
 			for r, row := range prev.Weights {
@@ -29,7 +29,7 @@ func foldInterval(s *State) error {
 				}
 				prev.Bias[r] = alpha*prev.Bias[r] + beta
 			}
-			s.note("%s: interval [%g, %g] folded into %s (×%g %+g)", l.Name, lo, hi, prev.Name, alpha, beta)
+			s.note("%s: interval [%g, %g] folded into %s (t = %gx %+g)", l.Name, lo, hi, prev.Name, alpha, beta)
 		} else {
 			m := &ir.Layer{Name: l.Name + "_map", Kind: ir.Dense, Pos: l.Pos, In: l.In, Out: l.In,
 				Weights: make([][]float64, l.In), Bias: make([]float64, l.In)}

@@ -31,6 +31,8 @@ type command struct {
 func commands() []command {
 	return []command{
 		{"build", "write the encrypted program for a spec", runBuild},
+		{"plan", "print the encrypted evaluation plan of a spec for review", runPlan},
+		{"calibrate", "measure the cost model of this machine", runCalibrate},
 		{"demo", "build, compile and self-test the embedded demo model", runDemo},
 		{"version", "print the generator version", runVersion},
 	}

@@ -1,0 +1,91 @@
+package golden
+
+import (
+	"os"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"testing"
+	"time"
+
+	"github.com/lanthorn/lanthorn/emit"
+	"github.com/lanthorn/lanthorn/passes"
+)
+
+var latencyLine = regexp.MustCompile(`latency of one encrypted evaluation:\s+(\S+) median`)
+
+// BenchmarkEstimateVsMeasured holds the cost model to account: for every
+// testdata model it prints the planner's estimated latency of one
+// encrypted evaluation next to the median measured by the emitted program's
+// self-test in the same run, and their ratio (target within ±25%).
+//
+//	go test ./golden -run '^$' -bench EstimateVsMeasured -benchtime 1x
+func BenchmarkEstimateVsMeasured(b *testing.B) {
+	for _, c := range cases(b) {
+		if c.bad {
+			continue
+		}
+		b.Run(c.name, func(b *testing.B) {
+			files, st, _, err := build(c)
+			if err != nil {
+				b.Fatal(err)
+			}
+			plan := passes.MakePlan(st, passes.DefaultProfile())
+			dir := b.TempDir()
+			if err := writeFiles(dir, files); err != nil {
+				b.Fatal(err)
+			}
+			bin := filepath.Join(dir, "bin", st.Prog.Name)
+			if out, err := goCommand(dir, "build", "-o", bin, "./cmd/"+st.Prog.Name); err != nil {
+				b.Fatalf("%v\n%s", err, out)
+			}
+			for range b.N {
+				out, err := runCommand(dir, bin, "selftest", "-n", "7")
+				if err != nil {
+					b.Fatalf("%v\n%s", err, out)
+				}
+				m := latencyLine.FindStringSubmatch(out)
+				if m == nil {
+					b.Fatalf("no latency in:\n%s", out)
+				}
+				d, err := time.ParseDuration(m[1])
+				if err != nil {
+					b.Fatal(err)
+				}
+				measured := float64(d.Microseconds()) / 1000
+				b.ReportMetric(plan.EstimateMS, "est-ms")
+				b.ReportMetric(measured, "measured-ms")
+				b.ReportMetric(plan.EstimateMS/measured, "est/measured")
+			}
+		})
+	}
+}
+
+// writeFiles writes an emitted program into dir.
+func writeFiles(dir string, files emit.Files) error {
+	for _, name := range files.Paths() {
+		p := filepath.Join(dir, filepath.FromSlash(name))
+		if err := os.MkdirAll(filepath.Dir(p), 0o755); err != nil {
+			return err
+		}
+		if err := os.WriteFile(p, files[name], 0o644); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func goCommand(dir string, args ...string) (string, error) {
+	cmd := exec.Command("go", args...)
+	cmd.Dir = dir
+	cmd.Env = append(os.Environ(), "GOWORK=off", "GOFLAGS=-mod=readonly")
+	out, err := cmd.CombinedOutput()
+	return string(out), err
+}
+
+func runCommand(dir, bin string, args ...string) (string, error) {
+	cmd := exec.Command(bin, args...)
+	cmd.Dir = dir
+	out, err := cmd.CombinedOutput()
+	return string(out), err
+}
