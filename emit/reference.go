@@ -19,15 +19,22 @@ func (e *emitter) weightsBlob() ([]byte, error) {
 		vecs = append(vecs, c.Data)
 	}
 	for _, l := range e.in.Model.Layers {
-		if l.Kind != ir.Dense {
-			continue
+		switch l.Kind {
+		case ir.Dense:
+			flat := make([]float64, 0, l.In*l.Out)
+			for _, row := range l.Weights {
+				flat = append(flat, row...)
+			}
+			names = append(names, "ref."+l.Name+".weights", "ref."+l.Name+".bias")
+			vecs = append(vecs, flat, l.Bias)
+		case ir.Conv2D:
+			names = append(names, "ref."+l.Name+".kernel", "ref."+l.Name+".bias")
+			vecs = append(vecs, l.Kernel, l.Bias)
+		case ir.BatchNorm:
+			n := l.Norm
+			names = append(names, "ref."+l.Name+".gamma", "ref."+l.Name+".beta", "ref."+l.Name+".mean", "ref."+l.Name+".variance")
+			vecs = append(vecs, n.Gamma, n.Beta, n.Mean, n.Var)
 		}
-		flat := make([]float64, 0, l.In*l.Out)
-		for _, row := range l.Weights {
-			flat = append(flat, row...)
-		}
-		names = append(names, "ref."+l.Name+".weights", "ref."+l.Name+".bias")
-		vecs = append(vecs, flat, l.Bias)
 	}
 	for _, l := range e.in.Model.Layers {
 		if l.Kind == ir.Activation && l.Act.Func != ir.Square {
@@ -58,6 +65,8 @@ func (e *emitter) reference() ([]byte, error) {
 				switch {
 				case l.Kind == ir.Dense:
 					b.Id("x").Op("=").Id("r").Dot("Dense").Call(jen.Id("x"), jen.Lit("ref."+l.Name+".weights"), jen.Lit("ref."+l.Name+".bias"), jen.Lit(l.Out), jen.Lit(l.In))
+				case l.Kind != ir.Activation:
+					e.tensorRef(b, l)
 				case l.Act.Func == ir.Square:
 					b.Id("x").Op("=").Id("r").Dot("Square").Call(jen.Id("x"))
 				case exact && l.Act.Func != ir.Poly:
@@ -74,4 +83,41 @@ func (e *emitter) reference() ([]byte, error) {
 		f.Line()
 	}
 	return render(f)
+}
+
+// tensorRef writes the reference call of a convolution, pool, flatten,
+// batch norm or scale layer.
+func (e *emitter) tensorRef(b *jen.Group, l *ir.Layer) {
+	ref := "ref." + l.Name
+	in := l.Ins()
+	ints := func(v ...int) *jen.Statement {
+		return jen.Index(jen.Lit(len(v))).Int().ValuesFunc(func(g *jen.Group) {
+			for _, x := range v {
+				g.Lit(x)
+			}
+		})
+	}
+	switch l.Kind {
+	case ir.Conv2D:
+		w := l.Window
+		shape := e.rtQual("Conv2DShape").Add(inline([]field{
+			{"In", ints(in...)}, {"Out", jen.Lit(l.Outs()[0])}, {"Kernel", ints(w.KH, w.KW)},
+			{"Stride", ints(w.SH, w.SW)}, {"Pad", ints(w.Pad[:]...)},
+		}))
+		b.Id("x").Op("=").Id("r").Dot("Conv2D").Call(jen.Id("x"), shape, jen.Lit(ref+".kernel"), jen.Lit(ref+".bias"))
+	case ir.AvgPool, ir.SumPool:
+		w := l.Window
+		shape := e.rtQual("PoolShape").Add(inline([]field{
+			{"In", ints(in...)}, {"Kernel", ints(w.KH, w.KW)}, {"Stride", ints(w.SH, w.SW)},
+		}))
+		method := map[ir.LayerKind]string{ir.AvgPool: "AvgPool", ir.SumPool: "SumPool"}[l.Kind]
+		b.Id("x").Op("=").Id("r").Dot(method).Call(jen.Id("x"), shape)
+	case ir.Flatten:
+		b.Comment(fmt.Sprintf("flatten %v → [%d]: the tensor is already packed channel-major; nothing moves", in, l.Out))
+	case ir.BatchNorm:
+		b.Id("x").Op("=").Id("r").Dot("BatchNorm").Call(jen.Id("x"), jen.Lit(len(l.Norm.Gamma)),
+			jen.Lit(ref+".gamma"), jen.Lit(ref+".beta"), jen.Lit(ref+".mean"), jen.Lit(ref+".variance"), jen.Lit(l.Norm.Eps))
+	case ir.ScaleBy:
+		b.Id("x").Op("=").Id("r").Dot("Scale").Call(jen.Id("x"), jen.Lit(l.Factor))
+	}
 }

@@ -57,13 +57,19 @@ func cases(t testing.TB) []goldenCase {
 	return out
 }
 
-// build runs the whole generator in memory, as `lanthorn build` does.
+// build runs the whole generator in memory, as `lanthorn build` does; the
+// header names the real hash of the case's inputs.
 func build(c goldenCase) (emit.Files, *passes.State, *ir.Graph, error) {
-	g, err := spec.Load(filepath.Join(repoRoot, filepath.FromSlash(c.spec)))
+	path := filepath.Join(repoRoot, filepath.FromSlash(c.spec))
+	g, inputs, err := spec.LoadWithFiles(path)
 	if err != nil {
 		return nil, nil, nil, err
 	}
-	files, st, err := emit.Build(g, passes.Options{}, emit.Options{SpecPath: c.spec, Version: goldenVersion})
+	sum, err := emit.InputsSHA256(os.DirFS(filepath.Dir(path)), inputs)
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	files, st, err := emit.Build(g, passes.Options{}, emit.Options{SpecPath: c.spec, Version: goldenVersion, InputsSHA256: sum})
 	return files, st, g, err
 }
 

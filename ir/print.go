@@ -11,11 +11,27 @@ import (
 func (g *Graph) String() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "graph %s from %s\n", g.Name, g.SpecFile)
-	fmt.Fprintf(&b, "  input %s[%d] in [%s, %s]\n", g.Input.Name, g.Input.Size, ffmt(g.Input.Min), ffmt(g.Input.Max))
+	fmt.Fprintf(&b, "  input %s[%s] in [%s, %s]\n", g.Input.Name, dims(g.Input.Dims()), ffmt(g.Input.Min), ffmt(g.Input.Max))
 	for _, l := range g.Layers {
+		shapes := fmt.Sprintf("[%s]→[%s]", dims(l.Ins()), dims(l.Outs()))
 		switch l.Kind {
 		case Dense:
 			fmt.Fprintf(&b, "  %s = dense %d→%d  ; %s\n", l.Name, l.In, l.Out, l.Pos)
+		case Conv2D, AvgPool, SumPool:
+			w := l.Window
+			fmt.Fprintf(&b, "  %s = %s %s kernel %d×%d stride %d×%d", l.Name, l.Kind, shapes, w.KH, w.KW, w.SH, w.SW)
+			if w.Pad != [4]int{} {
+				fmt.Fprintf(&b, " pad %v", w.Pad)
+			}
+			fmt.Fprintf(&b, "  ; %s\n", l.Pos)
+		case Flatten:
+			fmt.Fprintf(&b, "  %s = flatten %s  ; %s\n", l.Name, shapes, l.Pos)
+		case BatchNorm:
+			fmt.Fprintf(&b, "  %s = batchnorm [%s] eps %s  ; %s\n", l.Name, dims(l.Ins()), ffmt(l.Norm.Eps), l.Pos)
+		case ScaleBy:
+			fmt.Fprintf(&b, "  %s = scale ×%s  ; %s\n", l.Name, ffmt(l.Factor), l.Pos)
+		case Linear:
+			fmt.Fprintf(&b, "  %s = linear %s, %d nonzeros  ; %s\n", l.Name, shapes, l.Map.NNZ(), l.Pos)
 		case Activation:
 			a := l.Act
 			fmt.Fprintf(&b, "  %s = %s", l.Name, a.Func)
@@ -107,6 +123,9 @@ func (p *Program) FormatOp(op *Op) string {
 	}
 	return b.String()
 }
+
+// dims prints a shape as "1 28 28".
+func dims(shape []int) string { return strings.Trim(fmt.Sprint(shape), "[]") }
 
 func ffmt(f float64) string { return strconv.FormatFloat(f, 'g', -1, 64) }
 

@@ -39,30 +39,15 @@ func (a *Act) Apply(x float64) float64 {
 	}
 }
 
-// Reference evaluates the graph in float64 with direct loops: the
-// tensor-level view of correctness.
+// Reference evaluates the graph in float64 with direct loops (see
+// Layer.Eval): the tensor-level view of correctness.
 func (g *Graph) Reference(x []float64) ([]float64, error) {
 	if len(x) != g.Input.Size {
 		return nil, fmt.Errorf("input has %d values, model takes %d", len(x), g.Input.Size)
 	}
 	v := append([]float64(nil), x...)
 	for _, l := range g.Layers {
-		switch l.Kind {
-		case Dense:
-			y := make([]float64, l.Out)
-			for i, row := range l.Weights {
-				sum := l.Bias[i]
-				for j, w := range row {
-					sum += w * v[j]
-				}
-				y[i] = sum
-			}
-			v = y
-		case Activation:
-			for i := range v {
-				v[i] = l.Act.Apply(v[i])
-			}
-		}
+		v = l.Eval(v)
 	}
 	return v, nil
 }

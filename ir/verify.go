@@ -25,43 +25,119 @@ const (
 	Keyed
 )
 
-// VerifyGraph checks a graph's shapes and weights.
+// VerifyGraph checks a graph's shapes and weights: each layer reads the
+// shape the layer before it makes, and its parameters fit its shapes.
 func VerifyGraph(g *Graph) error {
 	var errs []error
 	if len(g.Layers) == 0 {
 		errs = append(errs, errors.New("graph has no layers"))
 	}
-	size := g.Input.Size
-	if size <= 0 {
-		errs = append(errs, fmt.Errorf("input size %d", size))
+	size, shape := g.Input.Size, g.Input.Dims()
+	if size <= 0 || Elems(shape) != size {
+		errs = append(errs, fmt.Errorf("input size %d, shape %v", size, shape))
 	}
 	for _, l := range g.Layers {
 		if l.In != size {
 			errs = append(errs, fmt.Errorf("%s: input length %d, previous layer gives %d", l.Name, l.In, size))
+		} else if len(l.InShape) > 0 && !slices.Equal(l.InShape, shape) {
+			errs = append(errs, fmt.Errorf("%s: input shape %v, previous layer gives %v", l.Name, l.InShape, shape))
 		}
-		switch l.Kind {
-		case Dense:
-			if len(l.Weights) != l.Out || len(l.Bias) != l.Out {
-				errs = append(errs, fmt.Errorf("%s: %d weight rows and %d biases for %d outputs", l.Name, len(l.Weights), len(l.Bias), l.Out))
-			}
-			for _, row := range l.Weights {
-				if len(row) != l.In {
-					errs = append(errs, fmt.Errorf("%s: weight row of %d, want %d", l.Name, len(row), l.In))
-					break
-				}
-			}
-		case Activation:
-			if l.Act == nil {
-				errs = append(errs, fmt.Errorf("%s: activation without a function", l.Name))
-			} else if l.In != l.Out {
-				errs = append(errs, fmt.Errorf("%s: activation changes length %d→%d", l.Name, l.In, l.Out))
-			}
-		default:
-			errs = append(errs, fmt.Errorf("%s: unknown layer kind %q", l.Name, l.Kind))
+		if Elems(l.Ins()) != l.In || Elems(l.Outs()) != l.Out {
+			errs = append(errs, fmt.Errorf("%s: shapes %v→%v for lengths %d→%d", l.Name, l.Ins(), l.Outs(), l.In, l.Out))
 		}
-		size = l.Out
+		if err := verifyLayer(l); err != nil {
+			errs = append(errs, fmt.Errorf("%s: %w", l.Name, err))
+		}
+		size, shape = l.Out, l.Outs()
 	}
 	return errors.Join(errs...)
+}
+
+// verifyLayer checks one layer's parameters against its shapes.
+func verifyLayer(l *Layer) error {
+	in, out := l.Ins(), l.Outs()
+	same := func() error {
+		if !slices.Equal(in, out) {
+			return fmt.Errorf("%s changes shape %v→%v", l.Kind, in, out)
+		}
+		return nil
+	}
+	switch l.Kind {
+	case Dense:
+		if len(l.Weights) != l.Out || len(l.Bias) != l.Out {
+			return fmt.Errorf("%d weight rows and %d biases for %d outputs", len(l.Weights), len(l.Bias), l.Out)
+		}
+		for _, row := range l.Weights {
+			if len(row) != l.In {
+				return fmt.Errorf("weight row of %d, want %d", len(row), l.In)
+			}
+		}
+	case Activation:
+		if l.Act == nil {
+			return errors.New("activation without a function")
+		}
+		if l.In != l.Out {
+			return fmt.Errorf("activation changes length %d→%d", l.In, l.Out)
+		}
+		return same()
+	case Conv2D, AvgPool, SumPool:
+		if len(in) != 3 || len(out) != 3 || l.Window == nil {
+			return fmt.Errorf("%s needs [C, H, W] shapes and a window, has %v→%v", l.Kind, in, out)
+		}
+		w := l.Window
+		oh, ow := w.OutHW(in[1], in[2])
+		if oh < 1 || ow < 1 || out[1] != oh || out[2] != ow {
+			return fmt.Errorf("window %d×%d stride %d×%d padding %v over %v gives %d×%d, shape says %v", w.KH, w.KW, w.SH, w.SW, w.Pad, in, oh, ow, out)
+		}
+		if l.Kind == Conv2D {
+			if n := out[0] * in[0] * w.KH * w.KW; len(l.Kernel) != n || len(l.Bias) != out[0] {
+				return fmt.Errorf("kernel of %d and %d biases, want %d and %d", len(l.Kernel), len(l.Bias), n, out[0])
+			}
+		} else if out[0] != in[0] || w.Pad != [4]int{} {
+			return fmt.Errorf("pool changes channels %d→%d or pads %v", in[0], out[0], w.Pad)
+		}
+	case Flatten:
+		if len(out) != 1 {
+			return fmt.Errorf("flatten gives shape %v, want a vector", out)
+		}
+	case BatchNorm:
+		n := l.Norm
+		if n == nil {
+			return errors.New("batch norm without parameters")
+		}
+		c := in[0]
+		for _, v := range [][]float64{n.Gamma, n.Beta, n.Mean, n.Var} {
+			if len(v) != c {
+				return fmt.Errorf("%d parameters for %d channels", len(v), c)
+			}
+		}
+		for _, v := range n.Var {
+			if !(v+n.Eps > 0) {
+				return fmt.Errorf("variance %g + epsilon %g is not positive", v, n.Eps)
+			}
+		}
+		return same()
+	case ScaleBy:
+		return same()
+	case Linear:
+		m := l.Map
+		if m == nil || m.Rows != l.Out || m.Cols != l.In || len(m.Row) != l.Out {
+			return fmt.Errorf("sparse map does not match %d→%d", l.In, l.Out)
+		}
+		if l.Bias != nil && len(l.Bias) != l.Out {
+			return fmt.Errorf("%d biases for %d outputs", len(l.Bias), l.Out)
+		}
+		for _, row := range m.Row {
+			for k, e := range row {
+				if e.Col < 0 || e.Col >= l.In || k > 0 && row[k-1].Col >= e.Col {
+					return fmt.Errorf("sparse row with column %d out of order or range", e.Col)
+				}
+			}
+		}
+	default:
+		return fmt.Errorf("unknown layer kind %q", l.Kind)
+	}
+	return nil
 }
 
 // VerifyProgram checks the CKKS rules that hold at the given stage: SSA form,

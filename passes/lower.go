@@ -35,6 +35,9 @@ func lower(s *State) error {
 		case ir.Dense:
 			info.Kind = fmt.Sprintf("dense %d→%d", l.In, l.Out)
 			x, err = b.dense(l, x, info)
+		case ir.Linear:
+			info.Kind = describeLinear(l)
+			x, err = b.linear(l, x, info)
 		case ir.Activation:
 			x, err = b.activation(l, x, info)
 		default:
@@ -95,7 +98,50 @@ func (b *builder) dense(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.Value
 			diags[k] = d
 		}
 	}
-	n1 := bestBabySteps(diags, D)
+	return b.matVec(l, diags, x, info)
+}
+
+// linear lowers a sparse linear layer like a dense one, building each
+// diagonal from the nonzero entries: entry (t, c) lies on diagonal
+// (c − t) mod D, so the cost is the number of nonzeros, not D² per layer.
+func (b *builder) linear(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.ValueID, error) {
+	D := b.p.Period
+	diags := map[int][]float64{}
+	for t, row := range l.Map.Row {
+		for _, e := range row {
+			k := ((e.Col-t)%D + D) % D
+			d, ok := diags[k]
+			if !ok {
+				d = make([]float64, D)
+				diags[k] = d
+			}
+			d[t] += e.Val
+		}
+	}
+	for k, d := range diags {
+		if allZero(d) {
+			delete(diags, k)
+		}
+	}
+	return b.matVec(l, diags, x, info)
+}
+
+// matVec emits the baby-step giant-step product of the nonzero diagonals
+// with x, then adds the layer's bias.
+func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, info *ir.LayerInfo) (ir.ValueID, error) {
+	D := b.p.Period
+	n1, cost := bestBabySteps(diags, D)
+	// A layer with few outputs may instead fold its matrix into blocks of
+	// B = nextPow2(Out) rows: B diagonals, then log2(D/B) rotate-and-add
+	// steps sum the D/B partial results (see blockDiags).
+	block := D
+	if B := nextPow2(l.Out); B < D {
+		h := blockDiags(diags, l.Out, B, D)
+		hn1, hcost := bestBabySteps(h, D)
+		if hcost += log2(D / B); hcost < cost {
+			diags, n1, block = h, hn1, B
+		}
+	}
 	info.BabySteps, info.GiantSteps = n1, (D+n1-1)/n1
 
 	var babies []int
@@ -161,8 +207,22 @@ func (b *builder) dense(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.Value
 	if !haveAcc {
 		return 0, fmt.Errorf("%s: %s: every weight is zero; the layer is a constant and need not be encrypted", l.Pos, l.Name)
 	}
+	for step := block; step < D; step *= 2 {
+		rot := b.rotate(acc, step, fmt.Sprintf("Fold%d", step))
+		acc = b.op(ir.OpAdd, fmt.Sprintf("Folded%d", step), acc, rot)
+		info.Rotations++
+	}
+	if block < D {
+		info.Kind += fmt.Sprintf(" (in blocks of %d)", block)
+	}
+	// With blocks the result repeats with period B over the whole period;
+	// so does the bias, so every copy is the output and stays in range.
 	bias := make([]float64, D)
-	copy(bias, l.Bias)
+	for t := range bias {
+		if r := t % block; r < len(l.Bias) {
+			bias[t] = l.Bias[r]
+		}
+	}
 	if !allZero(bias) {
 		acc = b.withConst(ir.OpAddPlain, "Out", acc,
 			&ir.Const{Name: l.Name + ".bias", Kind: ir.Vector, Data: bias})
@@ -178,23 +238,62 @@ func (b *builder) rotate(v ir.ValueID, k int, name string) ir.ValueID {
 
 // bestBabySteps picks the baby-step count n1 that minimises the rotations
 // of the split: distinct nonzero i = k mod n1 plus distinct nonzero j = k/n1.
-func bestBabySteps(diags map[int][]float64, D int) int {
+// Ties go to the smallest n1.
+func bestBabySteps(diags map[int][]float64, D int) (n1, rotations int) {
+	keys := make([]int, 0, len(diags))
+	for k := range diags {
+		keys = append(keys, k)
+	}
+	// seenI[i] == n1 marks baby step i as counted for this n1; likewise
+	// seenJ for giant steps. No clearing between candidates.
+	seenI, seenJ := make([]int, D+1), make([]int, D+1)
 	best, bestCost := 1, math.MaxInt
 	for n1 := 1; n1 <= D; n1++ {
-		babies, giants := map[int]bool{}, map[int]bool{}
-		for k := range diags {
-			if k%n1 != 0 {
-				babies[k%n1] = true
+		cost := 0
+		for _, k := range keys {
+			if i := k % n1; i != 0 && seenI[i] != n1 {
+				seenI[i] = n1
+				cost++
 			}
-			if k/n1 != 0 {
-				giants[k/n1] = true
+			if j := k / n1; j != 0 && seenJ[j] != n1 {
+				seenJ[j] = n1
+				cost++
 			}
 		}
-		if cost := len(babies) + len(giants); cost < bestCost {
+		if cost < bestCost {
 			best, bestCost = n1, cost
 		}
 	}
-	return best
+	return best, bestCost
+}
+
+// blockDiags folds the diagonals of an Out×In matrix (diag_K[t] = W[t][(t+K)
+// mod D], t < Out) into B = nextPow2(Out) diagonals over the whole period:
+// h_k[r + mB] = diag_{mB+k}[r], so slot r + mB of Σ_k h_k ⊙ rot_k(x) is the
+// part of row r over the columns (r + mB + k) mod D, k < B, and summing the
+// D/B blocks (rotations by B, 2B, …, D/2) gives every row in full, repeated
+// with period B. It is the hybrid diagonal method of Halevi and Shoup
+// (common practice, from memory); it never reads a column ≥ In.
+func blockDiags(diags map[int][]float64, out, B, D int) map[int][]float64 {
+	h := map[int][]float64{}
+	for K, d := range diags {
+		k, m := K%B, K/B
+		hk, ok := h[k]
+		if !ok {
+			hk = make([]float64, D)
+			h[k] = hk
+		}
+		copy(hk[m*B:m*B+out], d[:out])
+	}
+	return h
+}
+
+func log2(n int) int {
+	k := 0
+	for 1<<k < n {
+		k++
+	}
+	return k
 }
 
 func (b *builder) activation(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.ValueID, error) {

@@ -55,7 +55,7 @@ func chooseParams(s *State) error {
 		if pin.LogScale != 0 {
 			logScale = pin.LogScale
 		}
-		q0 := min(logScale+magnitude+2, 61)
+		q0 := min(logScale+magnitude+2, 60) // lattigo takes ciphertext primes of at most 60 bits
 		logQ := make([]int, depth+1)
 		logQ[0] = q0
 		for i := 1; i <= depth; i++ {
@@ -157,6 +157,19 @@ func valueBounds(g *ir.Graph) []float64 {
 				nb = math.Max(nb, sum)
 			}
 			b = nb
+		case ir.Linear:
+			nb := 0.0
+			for i, row := range l.Map.Row {
+				sum := 0.0
+				if l.Bias != nil {
+					sum = math.Abs(l.Bias[i])
+				}
+				for _, e := range row {
+					sum += math.Abs(e.Val) * b
+				}
+				nb = math.Max(nb, sum)
+			}
+			b = nb
 		case ir.Activation:
 			b = actBound(l.Act, b)
 		}
@@ -221,21 +234,7 @@ func noiseGain(g *ir.Graph) float64 {
 func forward(layers []*ir.Layer, x []float64) []float64 {
 	v := append([]float64(nil), x...)
 	for _, l := range layers {
-		switch l.Kind {
-		case ir.Dense:
-			y := make([]float64, l.Out)
-			for i, row := range l.Weights {
-				y[i] = l.Bias[i]
-				for j, w := range row {
-					y[i] += w * v[j]
-				}
-			}
-			v = y
-		case ir.Activation:
-			for i := range v {
-				v[i] = l.Act.Apply(v[i])
-			}
-		}
+		v = l.Eval(v)
 	}
 	return v
 }

@@ -26,6 +26,12 @@ var Pipeline = []Pass{
 		Why: "replace relu, sigmoid and tanh by Chebyshev interpolants over their declared intervals"},
 	{Name: "fold-interval", Run: foldInterval, Required: true, Graph: true,
 		Why: "map each interpolant's interval onto [-1, 1] inside the preceding linear layer, so no level is spent on it"},
+	{Name: "fold-batchnorm", Run: foldBatchNorm, Required: true, Graph: true,
+		Why: "fold each batch norm into the convolution or dense layer before it; others become diagonal maps for merge-linear"},
+	{Name: "linearize", Run: linearize, Required: true, Graph: true,
+		Why: "convolutions, pools and scalings become sparse matrices on the packed channel-major tensor; flatten moves no data"},
+	{Name: "merge-linear", Run: mergeLinear, Graph: true,
+		Why: "consecutive linear layers become their product: one level and one rescale instead of one each"},
 	{Name: "lower", Run: lower, Required: true, Stage: ir.Lowered,
 		Why: "lay vectors out in slots; dense layers become baby-step giant-step diagonal products, activations polynomials"},
 	{Name: "relinearize", Run: placeRelinearize, Required: true, Stage: ir.Relinearized,
@@ -47,6 +53,10 @@ var Pipeline = []Pass{
 var Order = []struct{ Before, After, Why string }{
 	{"approximate", "fold-interval", "the interval map folds into coefficients that exist only after approximation"},
 	{"fold-interval", "lower", "lowering reads the folded weights"},
+	{"fold-interval", "fold-batchnorm", "the reference model is kept before batch norms fold, and an interval folds into a batch norm's γ and β"},
+	{"fold-batchnorm", "linearize", "a batch norm folds into a convolution's kernel before it becomes a matrix"},
+	{"linearize", "merge-linear", "merging multiplies the matrices linearize makes"},
+	{"merge-linear", "lower", "lowering reads the merged layers"},
 	{"relinearize", "rescale", "rescale placement needs degree-1 values"},
 	{"rescale", "params", "the depth is known only once every rescale is placed"},
 	{"params", "levels", "levels count down from the chain's top"},
@@ -117,6 +127,7 @@ func verifyAfter(s *State, p Pass) error {
 
 func cloneGraph(g *ir.Graph) *ir.Graph {
 	c := *g
+	c.Input.Shape = slices.Clone(g.Input.Shape)
 	c.Layers = make([]*ir.Layer, len(g.Layers))
 	for i, l := range g.Layers {
 		lc := *l
@@ -125,6 +136,25 @@ func cloneGraph(g *ir.Graph) *ir.Graph {
 			lc.Weights[r] = slices.Clone(row)
 		}
 		lc.Bias = slices.Clone(l.Bias)
+		lc.InShape, lc.OutShape = slices.Clone(l.InShape), slices.Clone(l.OutShape)
+		lc.Kernel = slices.Clone(l.Kernel)
+		lc.From = slices.Clone(l.From)
+		if l.Window != nil {
+			w := *l.Window
+			lc.Window = &w
+		}
+		if l.Norm != nil {
+			n := ir.Norm{Gamma: slices.Clone(l.Norm.Gamma), Beta: slices.Clone(l.Norm.Beta),
+				Mean: slices.Clone(l.Norm.Mean), Var: slices.Clone(l.Norm.Var), Eps: l.Norm.Eps}
+			lc.Norm = &n
+		}
+		if l.Map != nil {
+			m := ir.SparseMap{Rows: l.Map.Rows, Cols: l.Map.Cols, Row: make([][]ir.Entry, len(l.Map.Row))}
+			for r, row := range l.Map.Row {
+				m.Row[r] = slices.Clone(row)
+			}
+			lc.Map = &m
+		}
 		if l.Act != nil {
 			a := *l.Act
 			a.Coeffs = slices.Clone(l.Act.Coeffs)

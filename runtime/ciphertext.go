@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strings"
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 )
@@ -82,7 +83,7 @@ func (p *Params) checkCiphertext(ct *Ciphertext) error {
 		return errors.New("nil ciphertext")
 	}
 	if ct.fp != p.fp {
-		return fmt.Errorf("ciphertext for another model (fingerprint %s, want %s)", short(ct.fp[:]), short(p.fp[:]))
+		return fmt.Errorf("ciphertext for another model (%s)", fingerprints(ct.fp[:], p.fp[:]))
 	}
 	c := ct.ct
 	if c.MetaData == nil {
@@ -105,13 +106,36 @@ func (p *Params) checkCiphertext(ct *Ciphertext) error {
 	return nil
 }
 
+// checkAt checks that ct is at the level and exact scale at, with the given
+// degree; the error says what differs.
+func (p *Params) checkAt(ct *Ciphertext, at LevelScale, degree int) error {
+	want, err := p.rlweScale(at.Scale)
+	if err != nil {
+		return err
+	}
+	var diffs []string
+	if ct.Level() != at.Level {
+		diffs = append(diffs, fmt.Sprintf("level %d, want %d", ct.Level(), at.Level))
+	}
+	if !sameScale(ct.ct.Scale, want) {
+		diffs = append(diffs, fmt.Sprintf("scale %s, want %s (%v)", fmtScale(ct.ct.Scale), fmtScale(want), at.Scale))
+	}
+	if ct.Degree() != degree {
+		diffs = append(diffs, fmt.Sprintf("degree %d, want %d", ct.Degree(), degree))
+	}
+	if len(diffs) > 0 {
+		return fmt.Errorf("ciphertext at %s", strings.Join(diffs, ", "))
+	}
+	return nil
+}
+
 // checkPlaintext verifies that pt belongs to p.
 func (p *Params) checkPlaintext(pt *Plaintext) error {
 	if pt == nil || pt.pt == nil {
 		return errors.New("nil plaintext")
 	}
 	if pt.fp != p.fp {
-		return fmt.Errorf("plaintext for another model (fingerprint %s, want %s)", short(pt.fp[:]), short(p.fp[:]))
+		return fmt.Errorf("plaintext for another model (%s)", fingerprints(pt.fp[:], p.fp[:]))
 	}
 	if pt.pt.Level() < 0 || pt.pt.Level() > p.MaxLevel() || pt.pt.Value.N() != 1<<p.spec.LogN {
 		return fmt.Errorf("malformed plaintext (level %d)", pt.pt.Level())

@@ -1,8 +1,11 @@
 package runtime
 
 import (
+	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
+	"math/big"
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 	"github.com/tuneinsight/lattigo/v5/he/hefloat"
@@ -64,18 +67,24 @@ func decodeCiphertext(p *Params, payload []byte) (*Ciphertext, error) {
 	if !ok {
 		return nil, fmt.Errorf("payload of %d bytes is not a ciphertext for these parameters", len(payload))
 	}
-	ct := hefloat.NewCiphertext(p.hp, degree, level)
-	l, err := newLayout(ct, func() {
-		for _, v := range ct.Value {
-			fillPoly(v)
-		}
+	l, err := p.layout(fmt.Sprintf("ciphertext degree %d level %d", degree, level), func() (layout, error) {
+		c := hefloat.NewCiphertext(p.hp, degree, level)
+		return newLayout(c, func() {
+			for _, v := range c.Value {
+				fillPoly(v)
+			}
+		})
 	})
 	if err != nil {
 		return nil, err
 	}
+	ct := hefloat.NewCiphertext(p.hp, degree, level)
 	meta := [2]int{1, 1 + metaDataSize()}
 	if err := l.match(payload, meta); err != nil {
 		return nil, fmt.Errorf("not a ciphertext for these parameters: %w", err)
+	}
+	if err := canonicalMetaData(p, payload[meta[0]:meta[1]]); err != nil {
+		return nil, fmt.Errorf("decode ciphertext: %w", err)
 	}
 	// lattigo's metadata decoder only ever sets flags, never clears them:
 	// start from empty metadata so that what is checked is what the file says.
@@ -86,7 +95,51 @@ func decodeCiphertext(p *Params, payload []byte) (*Ciphertext, error) {
 	if err := checkMetaData(p, ct.MetaData); err != nil {
 		return nil, fmt.Errorf("decode ciphertext: %w", err)
 	}
+	for i, v := range ct.Value {
+		if err := reduced(v, p.spec.Q); err != nil {
+			return nil, fmt.Errorf("decode ciphertext: polynomial %d: %w", i, err)
+		}
+	}
 	return p.wrap(ct), nil
+}
+
+// canonicalMetaData checks that b is, byte for byte, the metadata lattigo
+// writes for a ciphertext of p at the scale b states, before lattigo's
+// ciphertext decoder sees it. lattigo's metadata decoder accepts JSON in
+// other spellings (keys in any case, fields in any order) and dereferences
+// nil when the scale's modulus does not parse, so the scale's two numbers
+// are checked first, by this package's own JSON decoding.
+func canonicalMetaData(p *Params, b []byte) error {
+	var aux struct {
+		PlaintextMetaData struct {
+			Scale struct{ Value, Mod string }
+		}
+	}
+	if err := json.Unmarshal(b, &aux); err != nil {
+		return fmt.Errorf("metadata: %w", err)
+	}
+	sc := aux.PlaintextMetaData.Scale
+	if v, ok := new(big.Float).SetPrec(rlwe.ScalePrecision).SetString(sc.Value); !ok || v.Sign() <= 0 || v.IsInf() {
+		return fmt.Errorf("metadata: scale %q is not a positive number", sc.Value)
+	}
+	if m, ok := new(big.Float).SetString(sc.Mod); !ok || m.Sign() != 0 {
+		return errors.New("ciphertext scale has a modulus (not a CKKS scale)")
+	}
+	m := &rlwe.MetaData{}
+	if err := m.UnmarshalBinary(b); err != nil {
+		return fmt.Errorf("metadata: %w", err)
+	}
+	if err := checkMetaData(p, m); err != nil {
+		return err
+	}
+	want, err := m.MarshalBinary()
+	if err != nil {
+		return fmt.Errorf("metadata: %w", err)
+	}
+	if !bytes.Equal(b, want) {
+		return errors.New("metadata not in the form lattigo writes")
+	}
+	return nil
 }
 
 // checkMetaData accepts only the metadata this runtime's ciphertexts have.

@@ -30,6 +30,18 @@ type ModelInfo struct {
 	Keys       KeyRequest
 	Insecure   bool
 	Precision  int // bits of absolute precision the planner sized the parameters for
+	// Result is the level and exact scale of Evaluate's result. When set,
+	// eval checks its result against it and decrypt refuses a ciphertext
+	// anywhere else (an encrypted input passed by mistake, or the result of
+	// another plan); nil skips both checks.
+	Result *LevelScale
+}
+
+// LevelScale is where a ciphertext sits in the modulus chain: its level and
+// exact scale.
+type LevelScale struct {
+	Level int
+	Scale Scale
 }
 
 // Model is a generated model with its weights encoded.
@@ -49,8 +61,29 @@ const (
 	EvalKeysFile  = "eval.keys"
 )
 
-// caution is printed by decrypt and selftest.
-const caution = "caution: do not return decrypted values to the party that evaluated: CKKS decryptions leak information about the secret key (Li and Micciancio, 2021). Share only values rounded to the precision you need (decrypt -round)."
+// caution is printed by decrypt: a CKKS decryption carries the noise of
+// the ciphertext in its low digits, from which the evaluating party can
+// recover the secret key (Li and Micciancio, "On the Security of
+// Homomorphic Encryption on Approximate Numbers", EUROCRYPT 2021).
+// Rounding away the digits below the program's precision removes most of
+// that noise; it is the mitigation this program offers, not a proof.
+func (c *cli) caution() string {
+	return fmt.Sprintf("caution: do not return decrypted values to the party that evaluated: the low digits of CKKS decryptions leak information about the secret key (Li and Micciancio, 2021). "+
+		"Share only rounded values: decrypt -round %d keeps the %d bits of precision the program was sized for.", precisionDigits(c.info.Precision), c.info.Precision)
+}
+
+// precisionDigits is the number of decimal digits after the point that
+// bits bits of absolute precision (an error below 2^-bits) hold.
+func precisionDigits(bits int) int {
+	return max(0, int(math.Floor(float64(bits)*math.Log10(2))))
+}
+
+// maxRoundDigits bounds decrypt -round: float64 holds about 15 decimal digits.
+const maxRoundDigits = 15
+
+// insecureNote is printed with every output of a program whose parameters
+// exceed the 128-bit bound.
+const insecureNote = "INSECURE: this program's parameters exceed the 128-bit security bound; do not protect real data with them."
 
 // RunCLI is the command line of a generated program: keygen, encrypt, eval,
 // decrypt and selftest. It returns the process exit code.
@@ -73,7 +106,7 @@ func RunCLI(info ModelInfo, load func(*Params) (Model, error), args []string, st
 		}
 		fmt.Fprintf(w, "\nRun %s COMMAND -h for a command's flags.\n", info.Name)
 		if info.Insecure {
-			fmt.Fprintf(w, "\nINSECURE: this program's parameters exceed the 128-bit security bound.\n")
+			fmt.Fprintf(w, "\n%s\n", insecureNote)
 		}
 	}
 	if len(args) == 0 {
@@ -89,7 +122,7 @@ func RunCLI(info ModelInfo, load func(*Params) (Model, error), args []string, st
 			continue
 		}
 		if info.Insecure {
-			fmt.Fprintf(stderr, "%s: INSECURE parameters (above the 128-bit bound); do not protect real data with them\n", info.Name)
+			fmt.Fprintf(stderr, "%s: %s\n", info.Name, insecureNote)
 		}
 		err := cmd.run(args[1:])
 		switch {
@@ -197,16 +230,36 @@ func (c *cli) keygen(args []string) error {
 	if err := os.MkdirAll(filepath.Join(*dir, EvalKeysDir), 0o700); err != nil {
 		return err
 	}
-	if err := WriteSecretKey(skPath, p, sk); err != nil {
+	// Both files are written in full before either replaces anything, so a
+	// failure leaves no half-made key folder.
+	skFile, err := stageFile(skPath, 0o600, func(w io.Writer) error { return MarshalSecretKey(w, p, sk) })
+	if err != nil {
 		return err
 	}
 	evPath := filepath.Join(*dir, EvalKeysDir, EvalKeysFile)
-	if err := WriteEvaluationKeys(evPath, p, evk); err != nil {
+	evFile, err := stageFile(evPath, 0o644, func(w io.Writer) error { return MarshalEvaluationKeys(w, p, evk) })
+	if err != nil {
+		skFile.abort()
 		return err
 	}
-	fmt.Fprintf(c.stdout, "wrote %s (secret, keep on the client) and %s (%.1f MB, %d rotation keys) in %s\n",
-		skPath, evPath, float64(evk.Size())/1e6, len(c.info.Keys.Rotations), time.Since(start).Round(time.Millisecond))
+	if err := evFile.commit(); err != nil {
+		skFile.abort()
+		return err
+	}
+	if err := skFile.commit(); err != nil {
+		return err
+	}
+	fmt.Fprintf(c.stdout, "wrote %s (secret, keep on the client) and %s (%.1f MB, %d rotation keys) in %s%s\n",
+		skPath, evPath, float64(evk.Size())/1e6, len(c.info.Keys.Rotations), time.Since(start).Round(time.Millisecond), c.insecureSuffix())
 	return nil
+}
+
+// insecureSuffix marks a line of output of an insecure program.
+func (c *cli) insecureSuffix() string {
+	if c.info.Insecure {
+		return " (INSECURE parameters)"
+	}
+	return ""
 }
 
 func (c *cli) encrypt(args []string) error {
@@ -222,22 +275,15 @@ func (c *cli) encrypt(args []string) error {
 	if err := required(fs, "keys", "in", "out"); err != nil {
 		return err
 	}
-	rows, err := ReadCSV(*in, c.info.InputSize)
+	x, _, err := ReadCSVRow(*in, c.info.InputSize, *row)
 	if err != nil {
 		return err
 	}
-	if *row == 0 && len(rows) > 1 {
-		return fmt.Errorf("%s has %d vectors; choose one with -row", *in, len(rows))
-	}
-	if *row == 0 {
-		*row = 1
-	}
-	if *row < 1 || *row > len(rows) {
-		return fmt.Errorf("%s has %d vectors; -row %d is out of range", *in, len(rows), *row)
-	}
-	x := rows[*row-1]
 	if err := c.checkRange(x); err != nil {
-		return fmt.Errorf("%s:%d: %w", *in, *row, err)
+		return fmt.Errorf("%s: vector %d: %w", *in, max(*row, 1), err)
+	}
+	if err := keyFolder(*keys); err != nil {
+		return err
 	}
 	p, err := c.params()
 	if err != nil {
@@ -265,6 +311,18 @@ func (c *cli) checkRange(x []float64) error {
 	return nil
 }
 
+// keyFolder checks that path is a folder, as -keys wants.
+func keyFolder(path string) error {
+	st, err := os.Stat(path)
+	if err != nil {
+		return err // *PathError already names the folder
+	}
+	if !st.IsDir() {
+		return fmt.Errorf("-keys %s: not a folder; pass the folder made by keygen", path)
+	}
+	return nil
+}
+
 func (c *cli) eval(args []string) error {
 	fs := c.flags("eval", "-keys DIR -in FILE.ct -out FILE.ct",
 		"Evaluates the model on an encrypted input with the evaluation keys only.\nRefuses a key folder that holds a secret key: the server must never have it.")
@@ -277,6 +335,9 @@ func (c *cli) eval(args []string) error {
 	if err := required(fs, "keys", "in", "out"); err != nil {
 		return err
 	}
+	if err := keyFolder(*keys); err != nil {
+		return err
+	}
 	if _, err := os.Stat(filepath.Join(*keys, SecretKeyFile)); err == nil {
 		return fmt.Errorf("%s holds a secret key (%s): the evaluating party must not have it; pass the %s folder only", *keys, SecretKeyFile, EvalKeysDir)
 	}
@@ -284,13 +345,18 @@ func (c *cli) eval(args []string) error {
 	if err != nil {
 		return err
 	}
-	evk, err := ReadEvaluationKeys(filepath.Join(*keys, EvalKeysFile), p, c.info.Keys)
-	if err != nil {
-		return err
-	}
+	// The input is small and the keys are large: check the input first.
 	ct, err := ReadCiphertext(*in, p)
 	if err != nil {
-		return err
+		return serverSide(err)
+	}
+	fresh := LevelScale{Level: p.MaxLevel(), Scale: p.DefaultScale()}
+	if err := p.checkAt(ct, fresh, 1); err != nil {
+		return fmt.Errorf("%s: %w; eval takes a ciphertext made by encrypt (is this a result?)", *in, err)
+	}
+	evk, err := ReadEvaluationKeys(filepath.Join(*keys, EvalKeysFile), p, c.info.Keys)
+	if err != nil {
+		return serverSide(err)
 	}
 	start := time.Now()
 	m, err := c.load(p)
@@ -303,31 +369,50 @@ func (c *cli) eval(args []string) error {
 	if err != nil {
 		return fmt.Errorf("%s: %w", *in, err)
 	}
+	if c.info.Result != nil {
+		if err := p.checkAt(res, *c.info.Result, 1); err != nil {
+			return fmt.Errorf("%s: the model's result: %w (the program does not match its own plan)", *in, err)
+		}
+	}
 	took := time.Since(start)
 	if err := WriteCiphertext(*out, p, res); err != nil {
 		return err
 	}
-	fmt.Fprintf(c.stderr, "evaluated in %s (weights encoded in %s); wrote %s\n", took.Round(time.Millisecond), prep.Round(time.Millisecond), *out)
+	fmt.Fprintf(c.stderr, "evaluated in %s (weights encoded in %s); wrote %s%s\n", took.Round(time.Millisecond), prep.Round(time.Millisecond), *out, c.insecureSuffix())
 	return nil
+}
+
+// serverSide adds, to an error about a file that turned out to be a secret
+// key, that the evaluating party must not have it.
+func serverSide(err error) error {
+	var wk *wrongKindError
+	if errors.As(err, &wk) && wk.got == kindSecretKey {
+		return fmt.Errorf("%w: a secret key must stay with the client; delete this copy from the evaluating side", err)
+	}
+	return err
 }
 
 func (c *cli) decrypt(args []string) error {
 	fs := c.flags("decrypt", "-keys DIR -in FILE.ct",
-		fmt.Sprintf("Decrypts a result and prints the %d %s values, comma-separated.", c.info.OutputSize, c.info.OutputName))
+		fmt.Sprintf("Decrypts a result and prints the %d %s values, comma-separated.\nDo not return the values to the party that evaluated unless rounded (see -round).", c.info.OutputSize, c.info.OutputName))
 	keys := fs.String("keys", "", "key `folder` made by keygen (reads its "+SecretKeyFile+")")
 	in := fs.String("in", "", "result ciphertext `file`")
-	round := fs.Int("round", -1, "round to this many `digits` after the point (for results that will be shared)")
+	round := fs.Int("round", -1, fmt.Sprintf("round to this many `digits` after the point, 0..%d, for results that will be shared (%d keeps the program's precision); -1 prints every digit", maxRoundDigits, precisionDigits(c.info.Precision)))
 	if err := parse(fs, args); err != nil {
 		return err
 	}
 	if err := required(fs, "keys", "in"); err != nil {
 		return err
 	}
-	p, err := c.params()
-	if err != nil {
+	if *round < -1 || *round > maxRoundDigits {
+		fmt.Fprintf(fs.Output(), "-round %d: want 0..%d digits, or -1 for all\n", *round, maxRoundDigits)
+		fs.Usage()
+		return errCLIUsage
+	}
+	if err := keyFolder(*keys); err != nil {
 		return err
 	}
-	sk, err := ReadSecretKey(filepath.Join(*keys, SecretKeyFile), p)
+	p, err := c.params()
 	if err != nil {
 		return err
 	}
@@ -335,23 +420,39 @@ func (c *cli) decrypt(args []string) error {
 	if err != nil {
 		return err
 	}
+	if c.info.Result != nil {
+		if err := p.checkAt(ct, *c.info.Result, 1); err != nil {
+			return fmt.Errorf("%s: %w; decrypt takes a result of eval (is this an encrypted input?)", *in, err)
+		}
+	}
+	sk, err := ReadSecretKey(filepath.Join(*keys, SecretKeyFile), p)
+	if err != nil {
+		return err
+	}
 	y, err := Decrypt(p, sk, ct, c.info.OutputSize)
 	if err != nil {
 		return fmt.Errorf("%s: %w", *in, err)
 	}
-	fmt.Fprintln(c.stderr, caution)
+	fmt.Fprintln(c.stderr, c.caution())
 	fmt.Fprintln(c.stdout, FormatValues(y, *round))
 	return nil
 }
 
 // FormatValues prints values comma-separated, rounded to digits after the
-// point when digits >= 0, else in full precision.
+// point when digits >= 0, else with 12 significant digits. Digits above 15
+// are taken as 15, float64's decimal precision.
 func FormatValues(y []float64, digits int) string {
+	digits = min(digits, maxRoundDigits)
 	parts := make([]string, len(y))
 	for i, v := range y {
 		if digits >= 0 {
-			s := math.Pow(10, float64(digits))
-			parts[i] = strconv.FormatFloat(math.Round(v*s)/s, 'f', digits, 64)
+			// 'f' rounds the decimal expansion itself, half to even, with
+			// no overflow for large values or digit counts.
+			s := strconv.FormatFloat(v, 'f', digits, 64)
+			if strings.Trim(s, "-0.") == "" {
+				s = strings.TrimPrefix(s, "-") // the sign of a rounded zero is noise
+			}
+			parts[i] = s
 		} else {
 			parts[i] = strconv.FormatFloat(v, 'g', 12, 64)
 		}
@@ -423,8 +524,8 @@ func (c *cli) selftest(args []string) error {
 	slices.Sort(times)
 	median := times[len(times)/2]
 	w := bufio.NewWriter(c.stdout)
-	fmt.Fprintf(w, "%s selftest: logN %d, %d levels, %d rotation keys, evaluation keys %.1f MB\n",
-		c.info.Name, p.Spec().LogN, p.MaxLevel(), len(c.info.Keys.Rotations), float64(evk.Size())/1e6)
+	fmt.Fprintf(w, "%s selftest: logN %d, %d levels, %d rotation keys, evaluation keys %.1f MB%s\n",
+		c.info.Name, p.Spec().LogN, p.MaxLevel(), len(c.info.Keys.Rotations), float64(evk.Size())/1e6, c.insecureSuffix())
 	fmt.Fprintf(w, "  precision vs float64 model (as encrypted):   max abs error %.3g (%.1f bits; target %d) over %d inputs\n", worst.MaxAbsErr, worst.Bits, c.info.Precision, *n)
 	fmt.Fprintf(w, "  deviation from exact activations:            max abs error %.3g (%.1f bits)\n", worstExact.MaxAbsErr, worstExact.Bits)
 	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d (keygen %s, weight encoding %s)\n",
@@ -437,47 +538,6 @@ func (c *cli) selftest(args []string) error {
 			worst.MaxAbsErr, worst.Bits, c.info.Precision)
 	}
 	return nil
-}
-
-// ReadCSV reads vectors of n numbers, one per line; blank lines and lines
-// starting with # are skipped. Errors name the file and line.
-func ReadCSV(path string, n int) ([][]float64, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	var rows [][]float64
-	sc := bufio.NewScanner(io.LimitReader(f, 64<<20))
-	sc.Buffer(make([]byte, 0, 64<<10), 16<<20)
-	line := 0
-	for sc.Scan() {
-		line++
-		text := strings.TrimSpace(sc.Text())
-		if text == "" || strings.HasPrefix(text, "#") {
-			continue
-		}
-		fields := strings.Split(text, ",")
-		if len(fields) != n {
-			return nil, fmt.Errorf("%s:%d: %d values, want %d", path, line, len(fields), n)
-		}
-		row := make([]float64, n)
-		for i, s := range fields {
-			v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
-			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, fmt.Errorf("%s:%d: column %d: %q is not a finite number", path, line, i+1, strings.TrimSpace(s))
-			}
-			row[i] = v
-		}
-		rows = append(rows, row)
-	}
-	if err := sc.Err(); err != nil {
-		return nil, fmt.Errorf("%s: %w", path, err)
-	}
-	if len(rows) == 0 {
-		return nil, fmt.Errorf("%s: no input vectors", path)
-	}
-	return rows, nil
 }
 
 func worse(a, b Precision) Precision {

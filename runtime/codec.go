@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"slices"
+	"sync"
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 	"github.com/tuneinsight/lattigo/v5/ring"
@@ -84,6 +85,30 @@ func newLayout(obj io.WriterTo, fill func()) (layout, error) {
 			l.segs = append(l.segs, segment{off: i, want: []byte{v}})
 		}
 	}
+	return l, nil
+}
+
+// layoutCache memoizes the layouts of one parameter set by object shape: a
+// layout costs two encodings of an object of that shape and depends on
+// nothing else. Layouts are never modified once made.
+type layoutCache struct {
+	mu sync.Mutex
+	m  map[string]layout
+}
+
+// layout returns the layout of the shape named key, made by build the
+// first time.
+func (p *Params) layout(key string, build func() (layout, error)) (layout, error) {
+	p.lays.mu.Lock()
+	defer p.lays.mu.Unlock()
+	if l, ok := p.lays.m[key]; ok {
+		return l, nil
+	}
+	l, err := build()
+	if err != nil {
+		return layout{}, err
+	}
+	p.lays.m[key] = l
 	return l, nil
 }
 
@@ -226,4 +251,45 @@ func fillGadget(g *rlwe.GadgetCiphertext) {
 			}
 		}
 	}
+}
+
+// reduced checks that every coefficient of poly is below the prime of its
+// row. lattigo reads coefficients as they come; one at or above its prime
+// is no residue at all, and lattigo's arithmetic, which assumes residues,
+// would compute on it silently.
+func reduced(poly ring.Poly, moduli []uint64) error {
+	if len(poly.Coeffs) > len(moduli) {
+		return fmt.Errorf("%d rows, want at most %d", len(poly.Coeffs), len(moduli))
+	}
+	for i, row := range poly.Coeffs {
+		q := moduli[i]
+		for j, c := range row {
+			if c >= q {
+				return fmt.Errorf("coefficient %d of row %d is %d, not below its prime %d", j, i, c, q)
+			}
+		}
+	}
+	return nil
+}
+
+// reducedQP is reduced for a polynomial over Q and P.
+func (p *Params) reducedQP(poly ringqp.Poly) error {
+	if err := reduced(poly.Q, p.spec.Q); err != nil {
+		return err
+	}
+	return reduced(poly.P, p.spec.P)
+}
+
+// reducedGadget is reduced for every polynomial of a key-switching key.
+func (p *Params) reducedGadget(g *rlwe.GadgetCiphertext) error {
+	for _, row := range g.Value {
+		for _, v := range row {
+			for _, qp := range v {
+				if err := p.reducedQP(qp); err != nil {
+					return err
+				}
+			}
+		}
+	}
+	return nil
 }

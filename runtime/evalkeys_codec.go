@@ -31,25 +31,34 @@ type evkLayouts struct {
 }
 
 func newEvkLayouts(p *Params) (evkLayouts, error) {
-	rk := rlwe.NewRelinearizationKey(p.hp)
-	relin, err := newLayout(rk, func() { fillGadget(&rk.GadgetCiphertext) })
+	relin, err := p.layout("relinearization key", func() (layout, error) {
+		rk := rlwe.NewRelinearizationKey(p.hp)
+		return newLayout(rk, func() { fillGadget(&rk.GadgetCiphertext) })
+	})
 	if err != nil {
 		return evkLayouts{}, err
 	}
-	gk := rlwe.NewGaloisKey(p.hp)
-	galois, err := newLayout(gk, func() { fillGadget(&gk.GadgetCiphertext) })
+	galois, err := p.layout("galois key", func() (layout, error) {
+		gk := rlwe.NewGaloisKey(p.hp)
+		return newLayout(gk, func() { fillGadget(&gk.GadgetCiphertext) })
+	})
 	if err != nil {
 		return evkLayouts{}, err
 	}
 	return evkLayouts{relin: relin, galois: galois}, nil
 }
 
-// maxEvalKeysSize bounds the payload of an evaluation-keys file for p: a
-// relinearization key and a Galois key for every rotation.
-func maxEvalKeysSize(p *Params) int64 {
-	n := int64(p.Slots() - 1)
-	g := gadgetSize(p)
-	return int64(evkFramingSize(int(n))) + g + n*(16+g)
+// maxEvalKeysSize bounds the payload of an evaluation-keys file read for
+// req: as many keys as req asks for, each of them as large as a Galois key
+// (a relinearization key is 16 bytes smaller). Keys for every rotation
+// would take thousands of times more at large ring degrees, so the bound is
+// that of the program's own keys.
+func maxEvalKeysSize(p *Params, req KeyRequest) int64 {
+	n := len(normalizeSteps(p.Slots(), req.Rotations))
+	if req.Relinearize {
+		n++
+	}
+	return int64(evkFramingSize(n)) + int64(n)*(16+gadgetSize(p))
 }
 
 // gadgetSize is the encoded size of a key-switching key (the part of a
@@ -135,10 +144,13 @@ func decodeEvalKeys(p *Params, payload []byte) (*EvaluationKeys, error) {
 	}
 	if int64(len(payload)) != want {
 		what := fmt.Sprintf("%d rotation keys", n)
+		if n == 1 {
+			what = "1 rotation key"
+		}
 		if hasRelin == 1 {
 			what += " and a relinearization key"
 		}
-		return nil, fmt.Errorf("malformed evaluation keys: %d bytes, %s take %d", len(payload), what, want)
+		return nil, fmt.Errorf("malformed evaluation keys: %d bytes, want %d for %s", len(payload), want, what)
 	}
 	rest := payload[frame:]
 	if hasRelin == 1 {
@@ -149,6 +161,9 @@ func decodeEvalKeys(p *Params, payload []byte) (*EvaluationKeys, error) {
 		}
 		k.relin = rlwe.NewRelinearizationKey(p.hp)
 		if err := readInto(k.relin, b); err != nil {
+			return nil, fmt.Errorf("relinearization key: %w", err)
+		}
+		if err := p.reducedGadget(&k.relin.GadgetCiphertext); err != nil {
 			return nil, fmt.Errorf("relinearization key: %w", err)
 		}
 	}
@@ -165,6 +180,9 @@ func decodeEvalKeys(p *Params, payload []byte) (*EvaluationKeys, error) {
 		}
 		gk := rlwe.NewGaloisKey(p.hp)
 		if err := readInto(gk, b); err != nil {
+			return nil, fmt.Errorf("rotation key for step %d: %w", s, err)
+		}
+		if err := p.reducedGadget(&gk.GadgetCiphertext); err != nil {
 			return nil, fmt.Errorf("rotation key for step %d: %w", s, err)
 		}
 		k.galois[s] = gk

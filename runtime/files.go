@@ -30,7 +30,13 @@ func UnmarshalSecretKey(r io.Reader, p *Params) (sk *SecretKey, err error) {
 	if !p.ok() {
 		return nil, errors.New("nil parameters (or not made by NewParams)")
 	}
-	payload, err := readObject(r, p, kindSecretKey, secretKeySize(p))
+	size := secretKeySize(p)
+	payload, err := readObject(r, p, kindSecretKey, size, func(n int64) error {
+		if n != size {
+			return fmt.Errorf("header declares a payload of %d bytes; a secret key takes %d with these parameters", n, size)
+		}
+		return nil
+	})
 	if err != nil {
 		return nil, err
 	}
@@ -54,13 +60,15 @@ func MarshalEvaluationKeys(w io.Writer, p *Params, k *EvaluationKeys) (err error
 
 // UnmarshalEvaluationKeys reads evaluation keys written by
 // MarshalEvaluationKeys for p, and checks that they hold every key req asks
-// for (they may hold more).
+// for. req also bounds what is read: a file holding more keys than req asks
+// for is refused by its size, so a forged length costs no more than reading
+// the keys the program needs.
 func UnmarshalEvaluationKeys(r io.Reader, p *Params, req KeyRequest) (k *EvaluationKeys, err error) {
 	defer recoverTo(&err, "read evaluation keys")
 	if !p.ok() {
 		return nil, errors.New("nil parameters (or not made by NewParams)")
 	}
-	payload, err := readObject(r, p, kindEvalKeys, maxEvalKeysSize(p))
+	payload, err := readObject(r, p, kindEvalKeys, maxEvalKeysSize(p, req), nil)
 	if err != nil {
 		return nil, err
 	}
@@ -98,7 +106,12 @@ func UnmarshalCiphertext(r io.Reader, p *Params) (ct *Ciphertext, err error) {
 	if !p.ok() {
 		return nil, errors.New("nil parameters (or not made by NewParams)")
 	}
-	payload, err := readObject(r, p, kindCiphertext, maxCiphertextSize(p))
+	payload, err := readObject(r, p, kindCiphertext, maxCiphertextSize(p), func(n int64) error {
+		if _, _, ok := ciphertextShape(p, n); !ok {
+			return fmt.Errorf("header declares a payload of %d bytes, the size of no ciphertext for these parameters", n)
+		}
+		return nil
+	})
 	if err != nil {
 		return nil, err
 	}
@@ -127,7 +140,8 @@ func WriteEvaluationKeys(path string, p *Params, k *EvaluationKeys) error {
 }
 
 // ReadEvaluationKeys reads an evaluation-keys file and checks that it holds
-// every rotation key in req and, if req asks for it, a relinearization key.
+// every rotation key in req and, if req asks for it, a relinearization key
+// (see UnmarshalEvaluationKeys).
 func ReadEvaluationKeys(path string, p *Params, req KeyRequest) (*EvaluationKeys, error) {
 	var k *EvaluationKeys
 	err := readFile(path, func(r io.Reader) (err error) {
@@ -154,17 +168,35 @@ func ReadCiphertext(path string, p *Params) (*Ciphertext, error) {
 
 // writeFile writes through a temporary file in the same directory, synced
 // and renamed over path, so a reader never sees a half-written file and a
-// crash leaves the old file in place. The temporary file is created with
-// mode 0600 and only then given mode, so a secret is never readable by
-// others, not even briefly.
-func writeFile(path string, mode os.FileMode, write func(io.Writer) error) (err error) {
+// failure or a crash leaves the old file, or none, in place.
+func writeFile(path string, mode os.FileMode, write func(io.Writer) error) error {
+	s, err := stageFile(path, mode, write)
+	if err != nil {
+		return err
+	}
+	return s.commit()
+}
+
+// stagedFile is an output written in full to a temporary file beside its
+// path, waiting to be renamed over it.
+type stagedFile struct {
+	tmp, path string
+}
+
+// stageFile writes a temporary file for path and syncs it. The file is
+// created with mode 0600 and only then given mode, so a secret is never
+// readable by others, not even briefly. On error nothing is left behind.
+func stageFile(path string, mode os.FileMode, write func(io.Writer) error) (s *stagedFile, err error) {
+	if st, err := os.Stat(path); err == nil && !st.Mode().IsRegular() {
+		return nil, fmt.Errorf("%s: exists and is not a regular file", path)
+	}
 	dir, base := filepath.Split(path)
 	if dir == "" {
 		dir = "."
 	}
 	f, err := os.CreateTemp(dir, "."+base+".tmp*")
 	if err != nil {
-		return fmt.Errorf("%s: %w", path, err)
+		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	tmp := f.Name()
 	defer func() {
@@ -175,22 +207,36 @@ func writeFile(path string, mode os.FileMode, write func(io.Writer) error) (err 
 		}
 	}()
 	if err = f.Chmod(mode); err != nil {
-		return err
+		return nil, err
 	}
 	bw := bufio.NewWriterSize(f, 1<<20)
 	if err = write(bw); err != nil {
-		return err
+		return nil, err
 	}
 	if err = bw.Flush(); err != nil {
-		return err
+		return nil, err
 	}
 	if err = f.Sync(); err != nil {
-		return err
+		return nil, err
 	}
 	if err = f.Close(); err != nil {
-		return err
+		return nil, err
 	}
-	return os.Rename(tmp, path)
+	return &stagedFile{tmp: tmp, path: path}, nil
+}
+
+// commit renames the staged file over its path.
+func (s *stagedFile) commit() error {
+	if err := os.Rename(s.tmp, s.path); err != nil {
+		os.Remove(s.tmp)
+		return fmt.Errorf("%s: %w", s.path, err)
+	}
+	return nil
+}
+
+// abort removes the staged file.
+func (s *stagedFile) abort() {
+	os.Remove(s.tmp)
 }
 
 // readFile opens path and hands a buffered reader to read; errors name the

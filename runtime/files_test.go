@@ -296,6 +296,17 @@ func TestFilesForgedLayout(t *testing.T) {
 			i := bytes.Index(b, []byte(`"LogDimensions":["0x00","0x0b"]`))
 			b[i+len(`"LogDimensions":["0x00","0x0`)] = 'a'
 		}, "slot layout"},
+		// lattigo's JSON decoding takes keys in any case; the file must be
+		// exactly what lattigo writes.
+		{"ct metadata key case", kindCiphertext, fs.c, func(b []byte) {
+			i := bytes.Index(b, []byte(`"PlaintextMetaData"`))
+			b[i+1] = 'p'
+		}, "metadata not in the form lattigo writes"},
+		// lattigo dereferences nil on a scale modulus that does not parse.
+		{"ct scale modulus", kindCiphertext, fs.c, func(b []byte) {
+			i := bytes.Index(b, []byte(`"Mod":"0x0.`))
+			copy(b[i+len(`"Mod":"`):], "zz")
+		}, "ciphertext scale has a modulus"},
 		{"evk relin flag", kindEvalKeys, fs.evkB, func(b []byte) { b[headerSize] = 2 }, "relinearization flag 2"},
 		{"evk count", kindEvalKeys, fs.evkB, func(b []byte) { binary.LittleEndian.PutUint32(b[headerSize+1:], 1<<30) }, "rotation keys, at most"},
 		{"evk step order", kindEvalKeys, fs.evkB, func(b []byte) { binary.LittleEndian.PutUint32(b[headerSize+9:], 1) }, "want ascending steps"},
@@ -417,5 +428,6 @@ func TestGadgetSize(t *testing.T) {
 	for _, p := range append(params, two) {
 		require.Equal(t, int64(rlwe.NewRelinearizationKey(p.hp).BinarySize()), gadgetSize(p))
 		require.Equal(t, int64(rlwe.NewGaloisKey(p.hp).BinarySize()), 16+gadgetSize(p))
+		require.Equal(t, int64(rlwe.NewSecretKey(p.hp).BinarySize()), secretKeySize(p))
 	}
 }

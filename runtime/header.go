@@ -34,6 +34,17 @@ const (
 
 var objectMagic = [8]byte{'L', 'N', 'T', 'H', 'O', 'B', 'J', 0}
 
+// wrongKindError is the error of a file that holds another kind of object
+// than the one asked for; the server side tells a secret key apart by it.
+type wrongKindError struct {
+	got, want objectKind
+}
+
+// Error says what the file is and what was asked for.
+func (e *wrongKindError) Error() string {
+	return fmt.Sprintf("this is %s, not %s", e.got, e.want)
+}
+
 type objectKind uint16
 
 const (
@@ -129,11 +140,12 @@ func writeObject(w io.Writer, p *Params, kind objectKind, size int64, body func(
 }
 
 // readObject reads and checks a header and returns the checked payload.
-// maxPayload is the largest payload the parameters allow for this kind; the
-// declared length is checked against it before anything is allocated, and
+// maxPayload is the largest payload the parameters allow for this kind, and
+// sizeOK, if not nil, checks the declared length further (a ciphertext has
+// one of a few sizes). Both checks come before anything is allocated, and
 // the payload buffer then only grows as data actually arrives, so a header
 // that lies about the length costs nothing.
-func readObject(r io.Reader, p *Params, want objectKind, maxPayload int64) ([]byte, error) {
+func readObject(r io.Reader, p *Params, want objectKind, maxPayload int64, sizeOK func(int64) error) ([]byte, error) {
 	var hdr [headerSize]byte
 	n, err := io.ReadFull(r, hdr[:])
 	switch {
@@ -152,14 +164,19 @@ func readObject(r io.Reader, p *Params, want objectKind, maxPayload int64) ([]by
 	}
 	kind := objectKind(binary.LittleEndian.Uint16(hdr[10:12]))
 	if kind != want {
-		return nil, fmt.Errorf("this is %s, not %s", kind, want)
+		return nil, &wrongKindError{got: kind, want: want}
 	}
 	if !bytes.Equal(hdr[12:44], p.fp[:]) {
-		return nil, fmt.Errorf("%s for another model (fingerprint %s, want %s)", want.noun(), short(hdr[12:44]), short(p.fp[:]))
+		return nil, fmt.Errorf("%s for another model (%s)", want.noun(), fingerprints(hdr[12:44], p.fp[:]))
 	}
 	size := binary.LittleEndian.Uint64(hdr[44:52])
 	if size > uint64(maxPayload) {
-		return nil, fmt.Errorf("header declares a payload of %d bytes, more than the %d bytes %s takes with these parameters", size, maxPayload, want)
+		return nil, fmt.Errorf("header declares a payload of %d bytes, more than the %d bytes this program reads for %s", size, maxPayload, want)
+	}
+	if sizeOK != nil {
+		if err := sizeOK(int64(size)); err != nil {
+			return nil, err
+		}
 	}
 	var buf bytes.Buffer
 	buf.Grow(int(min(size, 1<<24)))

@@ -111,7 +111,7 @@ func (k *EvaluationKeys) keySet() rlwe.EvaluationKeySet {
 // check verifies that k holds everything req asks for.
 func (k *EvaluationKeys) check(p *Params, req KeyRequest) error {
 	if k.fp != p.fp {
-		return fmt.Errorf("evaluation keys for another model (fingerprint %s, want %s)", short(k.fp[:]), short(p.fp[:]))
+		return fmt.Errorf("evaluation keys for another model (%s)", fingerprints(k.fp[:], p.fp[:]))
 	}
 	if req.Relinearize && k.relin == nil {
 		return errors.New("no relinearization key, and the program multiplies ciphertexts")
@@ -134,7 +134,7 @@ func (p *Params) checkSecretKey(sk *SecretKey) error {
 		return errors.New("nil secret key")
 	}
 	if sk.fp != p.fp {
-		return fmt.Errorf("secret key for another model (fingerprint %s, want %s)", short(sk.fp[:]), short(p.fp[:]))
+		return fmt.Errorf("secret key for another model (%s)", fingerprints(sk.fp[:], p.fp[:]))
 	}
 	return nil
 }

@@ -43,6 +43,7 @@ type Params struct {
 	hp   hefloat.Parameters
 	fp   [sha256.Size]byte
 	hex  string
+	lays *layoutCache
 }
 
 // secretDist and errorDist are the distributions of every parameter set.
@@ -77,7 +78,7 @@ func NewParams(spec ParamSpec) (p *Params, err error) {
 	if hp.LevelsConsumedPerRescaling() != 1 {
 		return nil, errors.New("params: lattigo consumes more than one prime per rescale")
 	}
-	p = &Params{spec: spec, hp: hp}
+	p = &Params{spec: spec, hp: hp, lays: &layoutCache{m: map[string]layout{}}}
 	p.fp = fingerprint(spec)
 	p.hex = hex.EncodeToString(p.fp[:])
 	return p, nil
@@ -211,9 +212,15 @@ func (p *Params) LogQP() float64 {
 	return p.hp.LogQP()
 }
 
-// short is the fingerprint as printed in messages.
-func short(fp []byte) string {
-	return hex.EncodeToString(fp[:4]) + "…"
+// fingerprints prints a fingerprint found and the one wanted for messages,
+// "fingerprint 3f2a91c0…, want 91c0a3f2…": 4 bytes of each, or as many as it
+// takes to tell them apart.
+func fingerprints(got, want []byte) string {
+	n := min(4, len(got), len(want))
+	for n < len(got) && n < len(want) && string(got[:n]) == string(want[:n]) {
+		n++
+	}
+	return fmt.Sprintf("fingerprint %s…, want %s…", hex.EncodeToString(got[:n]), hex.EncodeToString(want[:n]))
 }
 
 // GeneratePrimes returns NTT-friendly primes with the given bit sizes, the

@@ -12,7 +12,7 @@
 //	description: vibration risk from ten sensor readings   # optional, ignored
 //	input:
 //	  name: features            # optional, default "input"
-//	  size: 10                  # required, >= 1
+//	  size: 10                  # required, >= 1 (or shape: [C, H, W] for an image)
 //	  range: [-4, 4]            # required: every input value lies in [min, max]
 //	output:
 //	  name: risk                # optional, default "output"
@@ -69,9 +69,52 @@
 //     activation sees: outside it the approximation is meaningless. The
 //     default degree is 15 for relu and 7 for sigmoid and tanh.
 //
+// # Images and tensor layers
+//
+// An image input has shape: [C, H, W] (channels, height, width) instead of
+// size. Its values are packed channel-major: value (c, y, x) is element
+// (c·H + y)·W + x of the vector the client encrypts, and every tensor layer
+// keeps that order. These layers read a [C, H, W] tensor:
+//
+//	layers:
+//	  - kind: conv2d            # cross-correlation, as deep-learning frameworks compute it
+//	    in: 1                   # optional: input channels, checked against the tensor
+//	    out: 5                  # required: output channels
+//	    kernel: [5, 5]          # required: [height, width], or one number for both
+//	    stride: 2               # optional, default 1: [height, width] or one number
+//	    padding: 1              # optional, default 0: zeros on every side, or {top: 1, bottom: 2, left: 1, right: 2}
+//	    weights: conv1_w.npy    # required: shape [out, in, kernel height, kernel width], .npy or nested lists
+//	    bias: conv1_b.npy       # optional (zeros): shape [out]
+//	  - kind: avgpool           # or sumpool: the mean (sum) of each window, per channel
+//	    kernel: 2               # required: [height, width] or one number
+//	    stride: 2               # optional, default the kernel; pools take no padding
+//	  - kind: flatten           # [C, H, W] → [C·H·W]; moves no data
+//
+// A conv2d output has floor((H + top + bottom − kh)/sh) + 1 rows and
+// likewise columns; a kernel that does not fit is an error naming the layer.
+// A dense layer must read a vector, so a flatten layer comes between the
+// last tensor layer and the first dense one. These take a vector or an
+// image:
+//
+//	layers:
+//	  - kind: batchnorm         # γ·(x − mean)/sqrt(variance + epsilon) + β, per channel
+//	    mean: [0.1, 0.2]        # required: one per channel (per value of a vector), .npy or list
+//	    variance: [1.0, 0.5]    # required, each >= 0
+//	    gamma: [1.0, 1.0]       # optional, default ones
+//	    beta: [0.0, 0.0]        # optional, default zeros
+//	    epsilon: 0.00001        # optional, default 1e-5
+//	  - kind: scale             # every value times a constant
+//	    factor: 0.5             # required, nonzero
+//
+// A batch norm is folded into the convolution or dense layer before it and
+// is never evaluated on ciphertexts; convolutions, pools and scalings become
+// sparse linear maps, and consecutive linear layers are merged into one.
+//
 // A layer without a name gets its kind word and its number among the layers
-// of that kind, counting named ones: dense1, dense2, ... for dense layers and
-// act1, act2, ... for activations. Layer names must be unique.
+// of that kind, counting named ones: dense1, dense2, ... for dense layers,
+// act1, ... for activations, conv1, ... for convolutions, pool1, ... for
+// average and sum pools together, flatten1, norm1 and scale1 for the rest.
+// Layer names must be unique.
 //
 // # Weight files
 //

@@ -93,7 +93,7 @@ func TestParseErrors(t *testing.T) {
 		{"input size over the limit", "lanthorn: 1\ninput:\n  size: 16777217\n  range: [0, 1]\n", nil, []string{
 			`gearbox.yaml:3:9: input.size: found integer 16777217, expected at most 16777216 (the size limit)`}},
 		{"input keys missing", "lanthorn: 1\ninput:\n  nmae: x\n", nil, []string{
-			`gearbox.yaml:3:3: unknown key "nmae" in input; expected one of: name, size, range`,
+			`gearbox.yaml:3:3: unknown key "nmae" in input; expected one of: name, size, shape, range`,
 			`gearbox.yaml:3:3: input: missing required key "size"`,
 			`gearbox.yaml:3:3: input: missing required key "range"`}},
 		{"input name bad", "lanthorn: 1\ninput:\n  name: 2x\n", nil, []string{
@@ -128,9 +128,9 @@ func TestParseErrors(t *testing.T) {
 		{"layer not a mapping", head + "  - dense\n", nil, []string{
 			`gearbox.yaml:7:5: layers[0]: found string "dense", expected a layer (a mapping with a kind)`}},
 		{"missing kind", head + "  - out: 2\n", nil, []string{
-			`gearbox.yaml:7:5: layers[0]: missing required key "kind" (dense or activation)`}},
-		{"unknown kind", head + "  - kind: conv2d\n", nil, []string{
-			`gearbox.yaml:7:11: layers[0].kind: found string "conv2d", expected dense or activation`}},
+			`gearbox.yaml:7:5: layers[0]: missing required key "kind" (dense, activation, conv2d, avgpool, sumpool, flatten, batchnorm or scale)`}},
+		{"unknown kind", head + "  - kind: maxpool\n", nil, []string{
+			`gearbox.yaml:7:11: layers[0].kind: found string "maxpool", expected dense, activation, conv2d, avgpool, sumpool, flatten, batchnorm or scale`}},
 		{"duplicate layer names", head + "  - kind: activation\n    function: square\n  - kind: activation\n    name: act1\n    function: square\n", nil, []string{
 			`gearbox.yaml:10:11: duplicate layer name "act1" (first used at gearbox.yaml:7:5)`}},
 		{"duplicate explicit names", head + "  - kind: activation\n    name: a\n    function: square\n  - kind: dense\n    name: a\n    out: 1\n    weights: [[1, 1]]\n", nil, []string{

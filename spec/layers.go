@@ -17,8 +17,21 @@ var (
 	defaultDeg = map[ir.ActFunc]int{ir.ReLU: 15, ir.Sigmoid: 7, ir.Tanh: 7}
 )
 
-// layers decodes the layer list; size is the input size or unknownSize.
-func (p *parser) layers(n *yaml.Node, size int) []*ir.Layer {
+// kindWords are the layer kinds and the words their default names start
+// with; avgpool and sumpool share one count.
+var kindWords = []struct {
+	kind ir.LayerKind
+	word string
+}{
+	{ir.Dense, "dense"}, {ir.Activation, "act"}, {ir.Conv2D, "conv"}, {ir.AvgPool, "pool"},
+	{ir.SumPool, "pool"}, {ir.Flatten, "flatten"}, {ir.BatchNorm, "norm"}, {ir.ScaleBy, "scale"},
+}
+
+const kindNames = "dense, activation, conv2d, avgpool, sumpool, flatten, batchnorm or scale"
+
+// layers decodes the layer list; shape is the input shape, nil when
+// unknown because of an earlier error.
+func (p *parser) layers(n *yaml.Node, shape []int) []*ir.Layer {
 	if n.Kind != yaml.SequenceNode {
 		p.errorf(n, "layers: found %s, expected a list of layers", describe(n))
 		return nil
@@ -32,7 +45,7 @@ func (p *parser) layers(n *yaml.Node, size int) []*ir.Layer {
 	}
 	var out []*ir.Layer
 	names := map[string]ir.Pos{}
-	count := map[ir.LayerKind]int{}
+	count := map[string]int{}
 	for i, c := range n.Content {
 		if p.exhausted {
 			return nil
@@ -41,20 +54,23 @@ func (p *parser) layers(n *yaml.Node, size int) []*ir.Layer {
 		where := fmt.Sprintf("layers[%d]", i)
 		if item.Kind != yaml.MappingNode {
 			p.errorf(item, "%s: found %s, expected a layer (a mapping with a kind)", where, describe(item))
-			size = unknownSize
+			shape = nil
 			continue
 		}
 		f := p.mapping(item, "in "+where)
 
 		var kind ir.LayerKind
+		word := ""
 		if k, ok := f.get("kind"); !ok {
-			p.errorf(item, "%s: missing required key \"kind\" (dense or activation)", where)
-		} else if s, ok := p.str(k.val, where+".kind", "dense or activation"); ok {
-			switch ir.LayerKind(s) {
-			case ir.Dense, ir.Activation:
-				kind = ir.LayerKind(s)
-			default:
-				p.errorf(k.val, "%s.kind: found string %q, expected dense or activation", where, s)
+			p.errorf(item, "%s: missing required key \"kind\" (%s)", where, kindNames)
+		} else if s, ok := p.str(k.val, where+".kind", kindNames); ok {
+			for _, kw := range kindWords {
+				if ir.LayerKind(s) == kw.kind {
+					kind, word = kw.kind, kw.word
+				}
+			}
+			if kind == "" {
+				p.errorf(k.val, "%s.kind: found string %q, expected %s", where, s, kindNames)
 			}
 		}
 
@@ -63,12 +79,8 @@ func (p *parser) layers(n *yaml.Node, size int) []*ir.Layer {
 		// called.
 		name := where
 		if kind != "" {
-			count[kind]++
-			word := "dense"
-			if kind == ir.Activation {
-				word = "act"
-			}
-			name = word + strconv.Itoa(count[kind])
+			count[word]++
+			name = word + strconv.Itoa(count[word])
 		}
 		namePos := p.pos(item)
 		if nm, ok := f.get("name"); ok {
@@ -85,17 +97,57 @@ func (p *parser) layers(n *yaml.Node, size int) []*ir.Layer {
 			}
 		}
 
-		l := &ir.Layer{Name: name, Kind: kind, Pos: p.pos(item), In: size}
+		l := &ir.Layer{Name: name, Kind: kind, Pos: p.pos(item), In: unknownSize}
+		if shape != nil {
+			l.In = ir.Elems(shape)
+			if len(shape) == 3 {
+				l.InShape = shape
+			}
+		}
+		keys := func(k []string) { p.unknown(f, fmt.Sprintf("in %s layer", kind), append([]string{"kind"}, k...), k) }
 		switch kind {
 		case ir.Dense:
-			p.unknown(f, "in dense layer", append([]string{"kind"}, denseKeys...), denseKeys)
-			size = p.dense(item, f, l)
+			keys(denseKeys)
+			if len(shape) == 3 {
+				p.errorf(item, "%s: dense layer on a %s tensor; add a flatten layer before it", l.Name, shapeWord(shape))
+				l.In = unknownSize
+			}
+			size := p.dense(item, f, l)
+			shape = nil
+			if size != unknownSize {
+				shape = []int{size}
+			}
 		case ir.Activation:
-			p.unknown(f, "in activation layer", append([]string{"kind"}, actKeys...), actKeys)
-			l.Out = size
+			keys(actKeys)
 			p.activation(item, f, l)
+		case ir.Conv2D:
+			keys(convKeys)
+			shape = p.conv(item, f, l, shape)
+		case ir.AvgPool, ir.SumPool:
+			keys(poolKeys)
+			shape = p.pool(item, f, l, shape)
+		case ir.Flatten:
+			keys([]string{"name"})
+			if shape != nil {
+				l.Out = l.In
+				shape = []int{l.In}
+			}
+		case ir.BatchNorm:
+			keys(normKeys)
+			p.batchNorm(item, f, l, shape)
+		case ir.ScaleBy:
+			keys(scaleKeys)
+			p.scale(item, f, l)
 		default:
-			size = unknownSize
+			shape = nil
+		}
+		if shape == nil {
+			l.Out = unknownSize
+		} else {
+			l.Out = ir.Elems(shape)
+			if len(shape) == 3 {
+				l.OutShape = shape
+			}
 		}
 		out = append(out, l)
 	}

@@ -61,11 +61,11 @@ func (p *parser) v1(root *yaml.Node, f *fields) *ir.Graph {
 		p.errorf(fl.val, "description: found %s, expected text", describe(fl.val))
 	}
 
-	size := unknownSize
+	var shape []int // nil: unknown after an error
 	if fl, ok := f.get("input"); ok {
-		size = p.input(fl, g)
+		shape = p.input(fl, g)
 	} else {
-		p.errorf(root, "missing required key \"input\" (input: {size: N, range: [min, max]})")
+		p.errorf(root, "missing required key \"input\" (input: {size: N, range: [min, max]} or {shape: [C, H, W], range: [min, max]})")
 	}
 
 	if fl, ok := f.get("output"); ok && p.wantMapping(fl.val, "output") {
@@ -90,7 +90,7 @@ func (p *parser) v1(root *yaml.Node, f *fields) *ir.Graph {
 		g.Pin = p.params(fl)
 	}
 	if fl, ok := f.get("layers"); ok {
-		g.Layers = p.layers(fl.val, size)
+		g.Layers = p.layers(fl.val, shape)
 	} else {
 		p.errorf(root, "missing required key \"layers\" (the model's layers, in evaluation order)")
 	}
@@ -100,14 +100,14 @@ func (p *parser) v1(root *yaml.Node, f *fields) *ir.Graph {
 	return g
 }
 
-// input decodes the input section and returns the input size, or
-// unknownSize.
-func (p *parser) input(fl field, g *ir.Graph) int {
+// input decodes the input section and returns the input shape, [n] for a
+// vector or [C, H, W] for an image, or nil when it is unknown.
+func (p *parser) input(fl field, g *ir.Graph) []int {
 	g.Input = ir.Input{Name: "input", Pos: p.pos(fl.key)}
 	if !p.wantMapping(fl.val, "input") {
-		return unknownSize
+		return nil
 	}
-	keys := []string{"name", "size", "range"}
+	keys := []string{"name", "size", "shape", "range"}
 	f := p.mapping(fl.val, "in input")
 	p.unknown(f, "in input", keys, keys)
 	if n, ok := f.get("name"); ok {
@@ -115,14 +115,26 @@ func (p *parser) input(fl field, g *ir.Graph) int {
 			g.Input.Name = s
 		}
 	}
-	size := unknownSize
-	if n, ok := f.get("size"); ok {
-		if v, ok := p.integer(n.val, "input.size", 1, MaxElements, "an integer >= 1"); ok {
-			size = v
-			g.Input.Size = v
+	var shape []int
+	sz, hasSize := f.get("size")
+	sh, hasShape := f.get("shape")
+	switch {
+	case hasSize && hasShape:
+		p.errorf(sh.key, "input: both size and shape given; use size: N for a vector or shape: [C, H, W] for an image")
+	case hasSize:
+		if v, ok := p.integer(sz.val, "input.size", 1, MaxElements, "an integer >= 1"); ok {
+			shape = []int{v}
 		}
-	} else {
-		p.errorf(fl.val, "input: missing required key \"size\" (the length of the input vector)")
+	case hasShape:
+		shape = p.shape(sh.val)
+	default:
+		p.errorf(fl.val, "input: missing required key \"size\" (the length of the input vector) or \"shape\" ([C, H, W] of an image)")
+	}
+	if shape != nil {
+		g.Input.Size = ir.Elems(shape)
+		if len(shape) == 3 {
+			g.Input.Shape = shape
+		}
 	}
 	if n, ok := f.get("range"); ok {
 		if r, ok := p.interval(n.val, "input.range", "min, max"); ok {
@@ -131,7 +143,32 @@ func (p *parser) input(fl field, g *ir.Graph) int {
 	} else {
 		p.errorf(fl.val, "input: missing required key \"range\" ([min, max], the range every input value lies in)")
 	}
-	return size
+	return shape
+}
+
+// shape reads an input shape: [n] or [C, H, W], each at least 1, at most
+// MaxElements values in all.
+func (p *parser) shape(n *yaml.Node) []int {
+	const expect = "a list [C, H, W] (channels, height, width) or [n], each an integer >= 1"
+	if n.Kind != yaml.SequenceNode || (len(n.Content) != 1 && len(n.Content) != 3) {
+		p.errorf(n, "input.shape: found %s, expected %s", describe(n), expect)
+		return nil
+	}
+	shape := make([]int, len(n.Content))
+	total := 1
+	for i, c := range n.Content {
+		v, ok := p.integer(resolve(c), fmt.Sprintf("input.shape[%d]", i), 1, MaxElements, "an integer >= 1")
+		if !ok {
+			return nil
+		}
+		shape[i] = v
+		total *= v
+		if total > MaxElements {
+			p.errorf(n, "input.shape %v has more than %d values (the size limit)", shape[:i+1], MaxElements)
+			return nil
+		}
+	}
+	return shape
 }
 
 // params decodes the pinned CKKS parameters.

@@ -83,15 +83,21 @@ func (p *parser) matrix(n *yaml.Node, name string, out, in int) [][]float64 {
 // vector reads a dense layer's bias, a .npy path or an inline list, and
 // checks its length against out, which may be unknownSize.
 func (p *parser) vector(n *yaml.Node, name string, out int) []float64 {
-	what := name + ": bias"
+	return p.vectorOf(n, name+": bias", out, "out")
+}
+
+// vectorOf reads a vector, a .npy path or an inline list, and checks its
+// length against want (unknownSize: any); unit names the length in
+// messages ("out", "channels").
+func (p *parser) vectorOf(n *yaml.Node, what string, want int, unit string) []float64 {
 	switch {
 	case n.Kind == yaml.ScalarNode && n.ShortTag() == "!!str":
 		data, shape, ok := p.npy(n, what)
 		if !ok {
 			return nil
 		}
-		if len(shape) != 1 || out != unknownSize && shape[0] != out {
-			p.errorf(n, "%s shape %v, want [%s] (out)", what, shape, sizeWord(out))
+		if len(shape) != 1 || want != unknownSize && shape[0] != want {
+			p.errorf(n, "%s shape %v, want [%s] (%s)", what, shape, sizeWord(want), unit)
 			return nil
 		}
 		if !p.finite(n, what, data, shape) {
@@ -99,8 +105,8 @@ func (p *parser) vector(n *yaml.Node, name string, out int) []float64 {
 		}
 		return data
 	case n.Kind == yaml.SequenceNode && len(n.Content) > 0:
-		if out != unknownSize && len(n.Content) != out {
-			p.errorf(n, "%s has %d numbers, want %d (out)", what, len(n.Content), out)
+		if want != unknownSize && len(n.Content) != want {
+			p.errorf(n, "%s has %d numbers, want %d (%s)", what, len(n.Content), want, unit)
 			return nil
 		}
 		b, ok := p.inlineNumbers(n.Content, n, what, nil)
@@ -109,7 +115,7 @@ func (p *parser) vector(n *yaml.Node, name string, out int) []float64 {
 		}
 		return b
 	default:
-		p.errorf(n, "%s: found %s, expected a path to a .npy file or a list of %s", what, describe(n), listOf(out, "numbers"))
+		p.errorf(n, "%s: found %s, expected a path to a .npy file or a list of %s", what, describe(n), listOf(want, "numbers"))
 		return nil
 	}
 }

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path"
 	"path/filepath"
 	"strings"
 
@@ -17,20 +18,37 @@ import (
 
 func version() string { return emit.Version }
 
+// programFlags are the flags that decide what build writes; check takes the
+// same ones, so that it compares with exactly what build would write.
+type programFlags struct {
+	out    *string
+	module *string
+}
+
+func addProgramFlags(fs *flag.FlagSet) programFlags {
+	return programFlags{
+		out:    fs.String("o", "", "output `directory` (created if missing)"),
+		module: fs.String("module", "", "module `path` of the emitted program (default: the model name)"),
+	}
+}
+
 func runBuild(args []string, stdout, stderr io.Writer) error {
 	fs := flag.NewFlagSet("build", flag.ContinueOnError)
-	out := fs.String("o", "", "output `directory` (created if missing)")
-	module := fs.String("module", "", "module `path` of the emitted program (default: the model name)")
+	pf := addProgramFlags(fs)
 	dump := fs.String("dump-after", "", "comma-separated `passes` whose IR is printed to stderr")
 	fs.Usage = func() {
-		fmt.Fprintf(stderr, "Usage: lanthorn build SPEC -o DIR [flags]\n\nWrites the Go program that evaluates SPEC's model on encrypted inputs.\n\nFlags:\n")
+		fmt.Fprintf(stderr, "Usage: lanthorn build SPEC -o DIR [flags]\n\n"+
+			"Writes the Go program that evaluates SPEC's model on encrypted inputs.\n"+
+			"Files whose content is unchanged are left untouched; files that an earlier\n"+
+			"build wrote (they start with lanthorn's generated-code header) and that\n"+
+			"this build no longer writes are removed. Nothing else in DIR is touched.\n\nFlags:\n")
 		fs.PrintDefaults()
 	}
 	pos, err := parseFlags(fs, args, stderr)
 	if err != nil {
 		return err
 	}
-	if len(pos) != 1 || *out == "" {
+	if len(pos) != 1 || *pf.out == "" {
 		fs.Usage()
 		return errUsage
 	}
@@ -38,7 +56,7 @@ func runBuild(args []string, stdout, stderr io.Writer) error {
 	if *dump != "" {
 		popts.DumpAfter = strings.Split(*dump, ",")
 	}
-	files, st, err := buildSpec(pos[0], popts, emit.Options{Module: *module, SpecPath: filepath.ToSlash(pos[0])})
+	files, st, err := generate(pos[0], *pf.out, *pf.module, popts)
 	if st != nil {
 		for _, name := range popts.DumpAfter {
 			if d, ok := st.Report.Dumps[name]; ok {
@@ -49,25 +67,68 @@ func runBuild(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	written, err := writeFiles(*out, files)
+	changed, err := writeFiles(*pf.out, files)
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(stdout, "wrote %s: %d files (%d changed)\n", *out, len(files), written)
+	removed, kept, err := removeStale(*pf.out, files)
+	if err != nil {
+		return err
+	}
+	summary := fmt.Sprintf("%d changed", changed)
+	if len(removed) > 0 {
+		summary += fmt.Sprintf(", %d removed: %s", len(removed), strings.Join(removed, ", "))
+	}
+	fmt.Fprintf(stdout, "wrote %s: %d files (%s)\n", *pf.out, len(files), summary)
+	for _, p := range kept {
+		fmt.Fprintf(stderr, "lanthorn build: warning: %s is not part of this program but has no lanthorn header, so it was left in place; remove it if lanthorn put it there\n", p)
+	}
 	return nil
 }
 
-// buildSpec loads a spec from disk and generates its program.
-func buildSpec(path string, popts passes.Options, opts emit.Options) (emit.Files, *passes.State, error) {
-	g, err := spec.Load(path)
+// generate loads a spec from disk and generates its program for the output
+// folder out, as build writes it and check compares it. The result depends
+// on the spec's and weights' contents, the spec's file name, out's path
+// relative to the spec's folder (named in the regenerate line) and the flags,
+// never on the working directory, absolute paths or the environment.
+func generate(specPath, out, module string, popts passes.Options) (emit.Files, *passes.State, error) {
+	g, inputs, err := spec.LoadWithFiles(specPath)
 	if err != nil {
 		return nil, nil, err
 	}
-	return emit.Build(g, popts, opts)
+	sum, err := emit.InputsSHA256(os.DirFS(filepath.Dir(specPath)), inputs)
+	if err != nil {
+		return nil, nil, fmt.Errorf("%s: hash the inputs: %w", specPath, err)
+	}
+	return emit.Build(g, popts, emit.Options{
+		Module:       module,
+		SpecPath:     path.Base(filepath.ToSlash(specPath)),
+		OutDir:       regenOutDir(specPath, out),
+		InputsSHA256: sum,
+	})
+}
+
+// regenOutDir names the output folder in the regenerate line: relative to
+// the spec's folder, where that line's command runs with the spec's base
+// name. Relative paths keep machine details out of the program; where there
+// is none (another volume), the line says <dir>.
+func regenOutDir(specPath, out string) string {
+	specDir, err1 := filepath.Abs(filepath.Dir(specPath))
+	outDir, err2 := filepath.Abs(out)
+	if err := errors.Join(err1, err2); err != nil {
+		return "<dir>"
+	}
+	rel, err := filepath.Rel(specDir, outDir)
+	if err != nil {
+		return "<dir>"
+	}
+	return filepath.ToSlash(rel)
 }
 
 // writeFiles writes the program into dir: each changed file to a temporary
-// sibling, then renamed into place; unchanged files are left untouched.
+// sibling, then renamed into place, so that a reader (an editor, a running
+// go build) never sees half a file; unchanged files are left untouched, so
+// their modification times stay and incremental builds stay quiet.
 func writeFiles(dir string, files emit.Files) (changed int, err error) {
 	for _, name := range files.Paths() {
 		dst := filepath.Join(dir, filepath.FromSlash(name))
@@ -100,4 +161,34 @@ func writeFiles(dir string, files emit.Files) (changed int, err error) {
 		changed++
 	}
 	return changed, nil
+}
+
+// removeStale deletes the files under dir that carry lanthorn's header but
+// that files does not hold (a previous build wrote them: a renamed model's
+// command, a temporary file left by an interrupted build), then the folders
+// that this left empty. It returns the removed paths and the extra runtime
+// files it left in place because they carry no header.
+func removeStale(dir string, files emit.Files) (removed, kept []string, err error) {
+	extra, err := extraFiles(dir, files)
+	if err != nil {
+		return nil, nil, err
+	}
+	for _, x := range extra {
+		if !x.generated {
+			kept = append(kept, x.path)
+			continue
+		}
+		p := filepath.Join(dir, filepath.FromSlash(x.path))
+		if err := os.Remove(p); err != nil {
+			return removed, kept, err
+		}
+		removed = append(removed, x.path)
+		// Remove the folders this emptied, up to (not including) dir.
+		for d := path.Dir(x.path); d != "."; d = path.Dir(d) {
+			if os.Remove(filepath.Join(dir, filepath.FromSlash(d))) != nil {
+				break // not empty, or not ours to judge
+			}
+		}
+	}
+	return removed, kept, nil
 }

@@ -34,7 +34,11 @@ func runDemo(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	files, _, err := emit.Build(g, passes.Options{}, emit.Options{SpecPath: "testdata/demo/" + demo.Spec})
+	sum, err := demoInputsSHA256()
+	if err != nil {
+		return fmt.Errorf("demo: %w", err)
+	}
+	files, _, err := emit.Build(g, passes.Options{}, emit.Options{SpecPath: "testdata/demo/" + demo.Spec, InputsSHA256: sum})
 	if err != nil {
 		return fmt.Errorf("demo: %w", err)
 	}
@@ -71,6 +75,20 @@ func loadDemo() (*ir.Graph, error) {
 		return nil, err
 	}
 	return spec.Parse(demo.Spec, data, demo.Files)
+}
+
+// demoInputsSHA256 hashes the embedded demo's spec and weight files, as
+// build hashes a spec's files on disk.
+func demoInputsSHA256() (string, error) {
+	data, err := fs.ReadFile(demo.Files, demo.Spec)
+	if err != nil {
+		return "", err
+	}
+	_, inputs, err := spec.ParseWithFiles(demo.Spec, data, demo.Files)
+	if err != nil {
+		return "", err
+	}
+	return emit.InputsSHA256(demo.Files, inputs)
 }
 
 func goCmd(dir string, stdout, stderr io.Writer, args ...string) error {

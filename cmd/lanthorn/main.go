@@ -2,6 +2,7 @@
 // evaluates the model on CKKS-encrypted inputs.
 //
 //	lanthorn build SPEC -o DIR     write the program for SPEC into DIR
+//	lanthorn check SPEC -o DIR     exit 0 if DIR holds what build writes, 1 if stale, 2 on error
 //	lanthorn demo                  build, compile and self-test the embedded demo
 //	lanthorn version               print the generator version
 package main
@@ -22,6 +23,22 @@ func main() {
 // errUsage marks an error whose message is a usage text already printed.
 var errUsage = errors.New("usage")
 
+// exitError makes the command exit with its code rather than 1; err, if
+// any, is printed as other errors are.
+type exitError struct {
+	code int
+	err  error
+}
+
+func (e *exitError) Error() string {
+	if e.err == nil {
+		return fmt.Sprintf("exit status %d", e.code)
+	}
+	return e.err.Error()
+}
+
+func (e *exitError) Unwrap() error { return e.err }
+
 type command struct {
 	name  string
 	short string
@@ -31,6 +48,7 @@ type command struct {
 func commands() []command {
 	return []command{
 		{"build", "write the encrypted program for a spec", runBuild},
+		{"check", "check that a folder holds what build writes (exit 1 if stale)", runCheck},
 		{"plan", "print the encrypted evaluation plan of a spec for review", runPlan},
 		{"calibrate", "measure the cost model of this machine", runCalibrate},
 		{"demo", "build, compile and self-test the embedded demo model", runDemo},
@@ -59,6 +77,7 @@ func run(args []string, stdout, stderr io.Writer) int {
 			continue
 		}
 		err := c.run(args[1:], stdout, stderr)
+		var exit *exitError
 		switch {
 		case err == nil:
 			return 0
@@ -66,6 +85,11 @@ func run(args []string, stdout, stderr io.Writer) int {
 			return 0
 		case errors.Is(err, errUsage):
 			return 2
+		case errors.As(err, &exit):
+			if exit.err != nil {
+				fmt.Fprintf(stderr, "lanthorn %s: %s\n", c.name, indent(exit.err.Error()))
+			}
+			return exit.code
 		default:
 			fmt.Fprintf(stderr, "lanthorn %s: %s\n", c.name, indent(err.Error()))
 			return 1
