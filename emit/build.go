@@ -6,12 +6,14 @@ import (
 )
 
 // Build compiles a graph and generates its program: the one path that the
-// command line, the demo and the golden tests share.
+// command line, the demo and the golden tests share. The README's plan is
+// priced with the embedded reference profile.
 func Build(g *ir.Graph, popts passes.Options, opts Options) (Files, *passes.State, error) {
 	prog, st, err := passes.Compile(g, popts)
 	if err != nil {
 		return nil, st, err
 	}
-	files, err := Generate(Input{Prog: prog, Model: st.Model, Notes: st.Report.Notes}, opts)
+	plan := passes.MakePlan(st, passes.DefaultProfile())
+	files, err := Generate(Input{Prog: prog, Model: st.Model, Notes: st.Report.Notes, Plan: plan}, opts)
 	return files, st, err
 }

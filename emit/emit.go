@@ -17,6 +17,7 @@ import (
 	"strings"
 
 	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/passes"
 	lrt "github.com/lanthorn/lanthorn/runtime"
 )
 
@@ -44,6 +45,8 @@ type Input struct {
 	Prog  *ir.Program
 	Model *ir.Graph // the reference model: activations approximated, intervals not folded
 	Notes []string
+	// Plan, when set, is the reviewable plan; the README carries it.
+	Plan *passes.Plan
 }
 
 // Files maps slash-separated relative paths to contents.

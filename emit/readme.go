@@ -39,23 +39,17 @@ func (e *emitter) readme() []byte {
 	w("```\n\n")
 
 	w("## Plan\n\n")
-	w("| | |\n|---|---|\n")
-	w("| ring degree | 2^%d (%d slots) |\n", pr.LogN, pr.Slots())
-	w("| ciphertext primes | %d: %v bits |\n", len(pr.LogQ), pr.LogQ)
-	w("| key-switching primes | %v bits |\n", pr.LogP)
-	w("| default scale | 2^%d |\n", pr.LogScale)
-	w("| log2(QP) | %d (128-bit bound %d) |\n", pr.LogQP, pr.SecurityBound)
-	w("| slot layout | period %d: vectors in slots [0, n), zero-padded, replicated |\n", p.Period)
-	w("| rotation keys | %d: %v |\n", len(p.Rotations), p.Rotations)
-	w("| relinearization key | %v |\n\n", p.Relinearize)
-	w("| layer | source | kind | levels | rotations | plaintext mults | ciphertext mults | rescales |\n")
-	w("|---|---|---|---|---|---|---|---|\n")
-	for _, l := range p.Layers {
-		w("| %s | %s | %s | %d→%d | %d | %d | %d | %d |\n", l.Name, l.Pos, l.Kind, l.LevelIn, l.LevelOut, l.Rotations, l.PlainMuls, l.CtMuls, l.Rescales)
-	}
-	w("\nWhy these parameters:\n\n")
-	for _, why := range pr.Why {
-		w("- %s\n", why)
+	if e.in.Plan != nil {
+		md := e.in.Plan.Markdown()
+		w("%s", md[strings.Index(md, "\n")+1:]) // the plan without its own title
+		w("\nSlot layout: period %d (vectors in slots [0, n), zero-padded, replicated over all slots).\n", p.Period)
+	} else {
+		w("| | |\n|---|---|\n")
+		w("| ring degree | 2^%d (%d slots) |\n", pr.LogN, pr.Slots())
+		w("| ciphertext primes | %d: %v bits |\n", len(pr.LogQ), pr.LogQ)
+		w("| key-switching primes | %v bits |\n", pr.LogP)
+		w("| log2(QP) | %d (128-bit bound %d) |\n", pr.LogQP, pr.SecurityBound)
+		w("| rotation keys | %d: %v |\n", len(p.Rotations), p.Rotations)
 	}
 	if len(e.in.Notes) > 0 {
 		w("\nCompiler notes:\n\n")
