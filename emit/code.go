@@ -121,6 +121,8 @@ func (e *emitter) params() ([]byte, error) {
 	f.Line()
 	comment(f.Comment, fmt.Sprintf("Info describes the program to the command line: its input %s (%d values in\n[%g, %g], laid out in slots [0, %d) of a period of %d slots), its output %s\n(%d values) and its parameters.",
 		p.InputName, p.InputSize, e.in.Model.Input.Min, e.in.Model.Input.Max, p.InputSize, p.Period, p.OutputName, p.OutputSize))
+	outID, _ := p.Output()
+	outV := p.Values[outID]
 	f.Func().Id("Info").Params().Add(e.rtQual("ModelInfo")).Block(
 		jen.Return(e.rtQual("ModelInfo").Add(multiline([]field{
 			{"Name", jen.Lit(p.Name)},
@@ -135,6 +137,10 @@ func (e *emitter) params() ([]byte, error) {
 			{"Keys", jen.Id("Keys")},
 			{"Insecure", jen.Lit(pr.Insecure)},
 			{"Precision", jen.Lit(e.in.Model.Precision)},
+			{"Result", jen.Op("&").Add(e.rtQual("LevelScale")).Add(inline([]field{
+				{"Level", jen.Lit(outV.Level)},
+				{"Scale", scaleLit(e, outV.Scale)},
+			}))},
 		}))),
 	)
 	return render(f)

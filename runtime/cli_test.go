@@ -2,6 +2,7 @@ package runtime
 
 import (
 	"bytes"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -150,7 +151,7 @@ func TestFormatValues(t *testing.T) {
 		want   string
 	}{
 		{[]float64{0.12345, -1.5}, 2, "0.12,-1.50"},
-		{[]float64{-0.0004, -0.0}, 3, "0.000,0.000"},
+		{[]float64{-0.0004, math.Copysign(0, -1)}, 3, "0.000,0.000"},
 		{[]float64{-0.0004}, -1, "-0.0004"},
 		{[]float64{1e20}, 0, "100000000000000000000"},
 		{[]float64{1.0 / 3}, 99, "0.333333333333333"},

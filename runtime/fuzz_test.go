@@ -40,16 +40,15 @@ var writeFuzzSeeds = flag.Bool("fuzzseeds", false, "rewrite the seed corpora und
 // one prime in Q and one in P, so that a secret key takes 16 KB and a
 // key-switching key is a single 33 KB row.
 type fuzzParams struct {
-	once    sync.Once
-	logQ    []int
-	logP    []int
-	model   string
-	req     KeyRequest
-	p       *Params
-	sk      *SecretKey
-	evk     *EvaluationKeys
-	err     error
-	prepare func(*fuzzParams) error
+	once  sync.Once
+	logQ  []int
+	logP  []int
+	model string
+	req   KeyRequest
+	p     *Params
+	sk    *SecretKey
+	evk   *EvaluationKeys
+	err   error
 }
 
 var (

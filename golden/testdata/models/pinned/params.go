@@ -58,5 +58,6 @@ func Info() runtime.ModelInfo {
 		Keys:       Keys,
 		Insecure:   false,
 		Precision:  12,
+		Result:     &runtime.LevelScale{Level: 1, Scale: runtime.Scale{Pow2: 30}},
 	}
 }

@@ -58,5 +58,6 @@ func Info() runtime.ModelInfo {
 		Keys:       Keys,
 		Insecure:   false,
 		Precision:  20,
+		Result:     &runtime.LevelScale{Level: 0, Scale: runtime.Scale{Pow2: 35}},
 	}
 }
