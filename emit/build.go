@@ -6,10 +6,11 @@ import (
 )
 
 // Build compiles a graph and generates its program: the one path that the
-// command line, the demo and the golden tests share. The README's plan is
+// command line, the demo and the golden tests share. Variants are selected
+// for the lowest estimated latency under the reference profile. The README's plan is
 // priced with the embedded reference profile.
 func Build(g *ir.Graph, popts passes.Options, opts Options) (Files, *passes.State, error) {
-	prog, st, err := passes.Compile(g, popts)
+	prog, st, _, err := passes.Select(g, popts, passes.DefaultProfile(), passes.Latency)
 	if err != nil {
 		return nil, st, err
 	}

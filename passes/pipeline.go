@@ -70,11 +70,17 @@ type Options struct {
 	NoVerify bool
 	// DumpAfter names passes whose output is kept in Report.Dumps.
 	DumpAfter []string
+	// KeepApart names linear layers that merge-linear must not merge into
+	// the linear layer before them (the selection pass sets it).
+	KeepApart map[string]bool
 }
 
 // Report collects what the passes decided, for plans and trace comments.
 type Report struct {
 	Notes []string
+	// Mergeable lists the linear layers merge-linear could merge into the
+	// one before them, merged or not: the selection's choices.
+	Mergeable []string
 	Dumps map[string]string
 }
 

@@ -17,6 +17,8 @@ type Plan struct {
 	EstimateMS float64    `json:"estimate_ms"`
 	Profile    string     `json:"profile"`
 	Notes      []string   `json:"notes"`
+	// Alternatives are the variants the selection compiled, cheapest first.
+	Alternatives []string `json:"alternatives,omitempty"`
 }
 
 // PlanParams are the chosen CKKS parameters.

@@ -38,11 +38,14 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	_, st, err := passes.Compile(g, passes.Options{})
+	_, st, cands, err := passes.Select(g, passes.Options{}, prof, passes.Latency)
 	if err != nil {
 		return err
 	}
 	plan := passes.MakePlan(st, prof)
+	for _, c := range cands {
+		plan.Alternatives = append(plan.Alternatives, c.String())
+	}
 	switch *format {
 	case "text":
 		return writePlanText(stdout, plan)
@@ -82,6 +85,9 @@ func writePlanText(w io.Writer, p *passes.Plan) error {
 	fmt.Fprintf(w, "estimated latency: %.1f ms (profile: %s)\n", p.EstimateMS, p.Profile)
 	for _, n := range p.Notes {
 		fmt.Fprintf(w, "note: %s\n", n)
+	}
+	for _, a := range p.Alternatives {
+		fmt.Fprintf(w, "considered: %s\n", a)
 	}
 	return nil
 }
