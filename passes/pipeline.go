@@ -81,7 +81,7 @@ type Report struct {
 	// Mergeable lists the linear layers merge-linear could merge into the
 	// one before them, merged or not: the selection's choices.
 	Mergeable []string
-	Dumps map[string]string
+	Dumps     map[string]string
 }
 
 // State is what passes read and write.
