@@ -20,7 +20,7 @@ import (
 
 // writeProgram writes an emitted program into a fresh folder outside the
 // repository, so `go build` there sees no generator and no replace line.
-func writeProgram(t *testing.T, files emit.Files) string {
+func writeProgram(t testing.TB, files emit.Files) string {
 	t.Helper()
 	dir := t.TempDir()
 	for _, name := range files.Paths() {
@@ -43,7 +43,7 @@ func goTool(t *testing.T, dir string, args ...string) string {
 }
 
 // run runs the program's binary and returns stdout; stderr goes to the log.
-func run(t *testing.T, dir, bin string, args ...string) string {
+func run(t testing.TB, dir, bin string, args ...string) string {
 	t.Helper()
 	var stdout, stderr bytes.Buffer
 	cmd := exec.Command(bin, args...)

@@ -1,14 +1,11 @@
 package golden
 
 import (
-	"os"
-	"os/exec"
 	"path/filepath"
 	"regexp"
 	"testing"
 	"time"
 
-	"github.com/lanthorn/lanthorn/emit"
 	"github.com/lanthorn/lanthorn/passes"
 )
 
@@ -31,19 +28,13 @@ func BenchmarkEstimateVsMeasured(b *testing.B) {
 				b.Fatal(err)
 			}
 			plan := passes.MakePlan(st, passes.DefaultProfile())
-			dir := b.TempDir()
-			if err := writeFiles(dir, files); err != nil {
-				b.Fatal(err)
-			}
+			dir := writeProgram(b, files)
 			bin := filepath.Join(dir, "bin", st.Prog.Name)
-			if out, err := goCommand(dir, "build", "-o", bin, "./cmd/"+st.Prog.Name); err != nil {
+			if out, err := goWithEnv(dir, userGoEnv(), "build", "-o", bin, "./cmd/"+st.Prog.Name); err != nil {
 				b.Fatalf("%v\n%s", err, out)
 			}
 			for range b.N {
-				out, err := runCommand(dir, bin, "selftest", "-n", "7")
-				if err != nil {
-					b.Fatalf("%v\n%s", err, out)
-				}
+				out := run(b, dir, bin, "selftest", "-n", "7")
 				m := latencyLine.FindStringSubmatch(out)
 				if m == nil {
 					b.Fatalf("no latency in:\n%s", out)
@@ -59,33 +50,4 @@ func BenchmarkEstimateVsMeasured(b *testing.B) {
 			}
 		})
 	}
-}
-
-// writeFiles writes an emitted program into dir.
-func writeFiles(dir string, files emit.Files) error {
-	for _, name := range files.Paths() {
-		p := filepath.Join(dir, filepath.FromSlash(name))
-		if err := os.MkdirAll(filepath.Dir(p), 0o755); err != nil {
-			return err
-		}
-		if err := os.WriteFile(p, files[name], 0o644); err != nil {
-			return err
-		}
-	}
-	return nil
-}
-
-func goCommand(dir string, args ...string) (string, error) {
-	cmd := exec.Command("go", args...)
-	cmd.Dir = dir
-	cmd.Env = append(os.Environ(), "GOWORK=off", "GOFLAGS=-mod=readonly")
-	out, err := cmd.CombinedOutput()
-	return string(out), err
-}
-
-func runCommand(dir, bin string, args ...string) (string, error) {
-	cmd := exec.Command(bin, args...)
-	cmd.Dir = dir
-	out, err := cmd.CombinedOutput()
-	return string(out), err
 }
