@@ -30,6 +30,7 @@ func lower(s *State) error {
 		info := &ir.LayerInfo{Name: l.Name, Pos: l.Pos}
 		p.Layers = append(p.Layers, info)
 		b := &builder{p: p, layer: i, prefix: identifier(l.Name)}
+		b.naive = s.Opts.Naive
 		var err error
 		switch l.Kind {
 		case ir.Dense:
@@ -57,6 +58,7 @@ type builder struct {
 	p      *ir.Program
 	layer  int
 	prefix string
+	naive  bool // Options.Naive: naiveMatVec (naive.go)
 }
 
 func (b *builder) op(kind ir.OpKind, name string, args ...ir.ValueID) ir.ValueID {
@@ -129,6 +131,9 @@ func (b *builder) linear(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.Valu
 // matVec emits the baby-step giant-step product of the nonzero diagonals
 // with x, then adds the layer's bias.
 func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, info *ir.LayerInfo) (ir.ValueID, error) {
+	if b.naive {
+		return b.naiveMatVec(l, diags, x, info)
+	}
 	D := b.p.Period
 	n1, cost := bestBabySteps(diags, D)
 	// A layer with few outputs may instead fold its matrix into blocks of

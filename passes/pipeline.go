@@ -73,6 +73,10 @@ type Options struct {
 	// KeepApart names linear layers that merge-linear must not merge into
 	// the linear layer before them (the selection pass sets it).
 	KeepApart map[string]bool
+	// Naive lowers without the ciphertext-level optimisations, as the
+	// benchmark's yardstick: one rotation per diagonal, a rescale after
+	// every product, eager relinearization (naive.go).
+	Naive bool
 }
 
 // Report collects what the passes decided, for plans and trace comments.

@@ -36,7 +36,7 @@ func placeRescale(s *State) error {
 			continue
 		}
 		for _, r := range op.Results {
-			if !needsRescale(p, r) {
+			if !needsRescale(p, r) && !naiveRescale(s, op) {
 				continue
 			}
 			nv := insertAfterDef(p, r, ir.OpRescale, "Rescaled", nil)

@@ -23,12 +23,16 @@ func version() string { return emit.Version }
 type programFlags struct {
 	out    *string
 	module *string
+	naive  *bool
 }
 
 func addProgramFlags(fs *flag.FlagSet) programFlags {
 	return programFlags{
 		out:    fs.String("o", "", "output `directory` (created if missing)"),
 		module: fs.String("module", "", "module `path` of the emitted program (default: the model name)"),
+		naive: fs.Bool("naive", false, "lower without the ciphertext-level optimisations (one rotation per diagonal, a rescale\n"+
+			"after every product, eager relinearization): the benchmark's yardstick, not for deployment;\n"+
+			"the regenerate line in the headers does not name it"),
 	}
 }
 
@@ -52,7 +56,7 @@ func runBuild(args []string, stdout, stderr io.Writer) error {
 		fs.Usage()
 		return errUsage
 	}
-	var popts passes.Options
+	popts := passes.Options{Naive: *pf.naive}
 	if *dump != "" {
 		popts.DumpAfter = strings.Split(*dump, ",")
 	}

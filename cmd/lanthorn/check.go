@@ -51,7 +51,7 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 		fs.Usage()
 		return errUsage
 	}
-	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{})
+	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive})
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
@@ -62,6 +62,9 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	cmd := fmt.Sprintf("lanthorn build %s -o %s", pos[0], *pf.out)
 	if *pf.module != "" {
 		cmd += " -module " + *pf.module
+	}
+	if *pf.naive {
+		cmd += " -naive"
 	}
 	if len(diffs) == 0 {
 		fmt.Fprintf(stdout, "%s is up to date: its %d files are what %s writes\n", *pf.out, len(files), cmd)

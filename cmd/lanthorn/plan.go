@@ -15,8 +15,10 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	fs := flag.NewFlagSet("plan", flag.ContinueOnError)
 	format := fs.String("format", "text", "output `format`: text, md (for a pull request) or json")
 	profile := fs.String("profile", "", "cost model `file` from lanthorn calibrate (default: the embedded reference profile)")
+	naive := fs.Bool("naive", false, "plan the naive lowering (one rotation per diagonal, a rescale after every product,\n"+
+		"eager relinearization), the benchmark's yardstick")
 	fs.Usage = func() {
-		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE]\n\n"+
+		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive]\n\n"+
 			"Compiles SPEC and prints its plan: the parameters and why, a row per layer\n"+
 			"(levels, rotations, key switches, products, rescales, estimated time),\n"+
 			"totals, evaluation keys and ciphertext sizes. Writes no files.\n\nFlags:\n")
@@ -38,7 +40,7 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	_, st, cands, err := passes.Select(g, passes.Options{}, prof, passes.Latency)
+	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive}, prof, passes.Latency)
 	if err != nil {
 		return err
 	}
