@@ -1,0 +1,365 @@
+package passes
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+
+	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/runtime"
+)
+
+// BoundDefinition says in prose what LowerBound counts; the benchmark
+// prints it under its table.
+const BoundDefinition = `lower bound: the work that the compiled program's layout cannot avoid, at the program's own levels,
+priced with primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its
+layout (of the blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions; rotations
+as the cheapest baby-step giant-step split of K over every baby-step count n1 (baby steps k mod n1 share the
+input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and are priced as
+full rotations); a blocked layer's sum of D/B shifted copies priced as the cheapest staging of hoisted sets
+(log2(D/B) single rotations at most); one rescale per level at which it multiplies. Per ciphertext product one
+product with its relinearization and one rescale; per polynomial of degree d, ceil(log2 d) such products
+(each at most doubles the degree) and one rescale per level it consumes. A hoisted set of r rotations costs
+rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of 4). Everything else (encoding,
+level drops, scalar products, bias additions) is free.`
+
+// Bound is the lower bound of one program's evaluation: see LowerBound.
+type Bound struct {
+	Layers []BoundLayer
+	// Totals over the layers.
+	PlainMuls   int
+	KeySwitches int // rotations of the cheapest splits and folds, and relinearizations
+	Relins      int
+	Rescales    int
+	MS          float64
+}
+
+// BoundLayer is the bound of one layer.
+type BoundLayer struct {
+	Layer     string
+	Diagonals int // plaintext products: nonzero diagonals of the layout
+	// BabySteps and GiantSteps are the rotations of the cheapest split
+	// (baby steps hoisted), at baby-step count Split; Folds are the
+	// rotations of the cheapest staging of a blocked layer's sum.
+	Split, BabySteps, GiantSteps, Folds int
+	Relins, Rescales                    int
+	MS                                  float64
+}
+
+// LowerBound is the cost of the work that a leveled program's layout
+// cannot avoid (BoundDefinition states it for readers of the benchmark),
+// priced with prof at the levels the program assigns.
+//
+// It reads the layout off the program itself, so that it holds for any
+// lowering of the same layout: a plaintext product whose ciphertext
+// operand is a layer input rotated by i (0 when unrotated), and whose
+// result reaches the layer's sum through additions and rotations totalling
+// j (giant steps) before any value is used twice, multiplies diagonal
+// (i + j) mod D. Rotations of a layer that are neither of an input nor on
+// such a path sum shifted copies of the whole (a blocked layer's fold);
+// the smallest of their steps is the block B, and D/B copies must be
+// summed. For each layer:
+//
+//   - one plaintext product per diagonal and |K|-1 additions, at the level
+//     of the products;
+//   - rotations: min over n1 in [1, max K + 1] of hoisted(|I|) + |J|·rot,
+//     with I the nonzero k mod n1 and J the nonzero k div n1 of every
+//     diagonal k of the layer (the union over inputs of J when several input
+//     ciphertexts feed one sum, whose giant rotation is then shared), at the
+//     level of the layer's input;
+//   - the fold of n = D/B copies: min over n = a·m of hoisted(a−1) plus the
+//     fold of m copies (rotate-and-sum by halves at most), at the level of
+//     the program's fold;
+//   - one rescale per distinct level of its plaintext products, and for
+//     every ciphertext product one product with relinearization and one
+//     rescale;
+//   - a polynomial of degree d: ⌈log2 d⌉ ciphertext products, each with its
+//     relinearization and rescale, and one rescale per further level it
+//     consumes, at the levels it runs through.
+//
+// hoisted(r) is rot + (r−1)·m with m = (hoisted4 − rot)/3 clamped to
+// [0, rot]: one decomposition and r inner products, fitted to the
+// profile's single rotation and its hoisted set of runtime.HoistedSteps.
+func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
+	if p.Params.LogN == 0 {
+		return nil, fmt.Errorf("bound: program %s has no parameters yet", p.Name)
+	}
+	logN, D := p.Params.LogN, p.Period
+	cost := func(op string, level int) float64 { return prof.Cost(op, logN, max(level, 0)) / 1e6 }
+	def := map[ir.ValueID]*ir.Op{}
+	uses := map[ir.ValueID][]*ir.Op{}
+	for _, op := range p.Ops {
+		for _, r := range op.Results {
+			def[r] = op
+		}
+		for _, a := range op.Args {
+			uses[a] = append(uses[a], op)
+		}
+	}
+	level := func(v ir.ValueID) int { return p.Values[v].Level }
+
+	// pre[v]: v is a rotation of a layer input base by off.
+	type rotated struct {
+		base ir.ValueID
+		off  int
+	}
+	pre := map[ir.ValueID]rotated{}
+	onPath := map[*ir.Op]bool{} // rotations accounted for as baby or giant steps
+	origin := func(v ir.ValueID, layer int) (rotated, bool) {
+		if r, ok := pre[v]; ok {
+			return r, true
+		}
+		if d := def[v]; d == nil || d.Layer != layer {
+			return rotated{base: v}, true
+		}
+		return rotated{}, false
+	}
+	b := &Bound{}
+	for li, info := range p.Layers {
+		bl := BoundLayer{Layer: info.Name}
+		type product struct {
+			base ir.ValueID
+			k    int
+			sum  ir.ValueID // where the trace stopped: the layer's sum
+		}
+		var prods []product
+		var prodLevels []int
+		inputLevel := -1
+		for _, op := range p.Ops {
+			if op.Layer != li {
+				continue
+			}
+			switch op.Kind {
+			case ir.OpRotate, ir.OpRotHoisted:
+				src, ok := origin(op.Args[0], li)
+				if !ok {
+					continue
+				}
+				onPath[op] = true
+				for i, r := range op.Results {
+					pre[r] = rotated{src.base, (src.off + op.Steps[i]) % D}
+				}
+				inputLevel = max(inputLevel, level(op.Args[0]))
+			case ir.OpRescale, ir.OpDropLevel, ir.OpRelinearize:
+				if r, ok := pre[op.Args[0]]; ok {
+					pre[op.Results[0]] = r
+				}
+			case ir.OpMulPlain:
+				src, ok := origin(op.Args[0], li)
+				if !ok {
+					src = rotated{base: op.Args[0]} // a product of an intermediate value: its own base
+				}
+				inputLevel = max(inputLevel, level(op.Args[0]))
+				prodLevels = append(prodLevels, level(op.Args[0]))
+				cur, post := op.Results[0], 0
+				for {
+					us := uses[cur]
+					if len(us) != 1 || us[0].Layer != li {
+						break
+					}
+					u := us[0]
+					if u.Kind == ir.OpRotate {
+						post += u.Steps[0]
+						onPath[u] = true
+					} else if u.Kind != ir.OpAdd && u.Kind != ir.OpAddPlain && u.Kind != ir.OpRescale &&
+						u.Kind != ir.OpRelinearize && u.Kind != ir.OpDropLevel {
+						break
+					}
+					cur = u.Results[0]
+				}
+				prods = append(prods, product{src.base, (src.off + post) % D, cur})
+			}
+		}
+		// Diagonals, per sum and input.
+		type key struct{ sum, base ir.ValueID }
+		diags := map[key]map[int]bool{}
+		var keys []key
+		maxK := 0
+		for _, pr := range prods {
+			k := key{pr.sum, pr.base}
+			if diags[k] == nil {
+				diags[k] = map[int]bool{}
+				keys = append(keys, k)
+			}
+			diags[k][pr.k] = true
+			maxK = max(maxK, pr.k)
+		}
+		for _, k := range keys {
+			bl.Diagonals += len(diags[k])
+		}
+		if bl.Diagonals > 0 {
+			l := inputLevel
+			bl.MS += float64(bl.Diagonals)*cost(CostMulPlain, l) + float64(bl.Diagonals-1)*cost(CostAdd, l)
+			bases := map[ir.ValueID][]int{} // diagonals by input, for the baby steps
+			sums := map[ir.ValueID][]int{}  // diagonals by sum, for the giant steps
+			var baseOrder, sumOrder []ir.ValueID
+			for _, k := range keys {
+				for d := range diags[k] {
+					if bases[k.base] == nil {
+						baseOrder = append(baseOrder, k.base)
+					}
+					if sums[k.sum] == nil {
+						sumOrder = append(sumOrder, k.sum)
+					}
+					bases[k.base] = append(bases[k.base], d)
+					sums[k.sum] = append(sums[k.sum], d)
+				}
+			}
+			best := math.Inf(1)
+			for n1 := 1; n1 <= maxK+1; n1++ {
+				ms, nb, ng := 0.0, 0, 0
+				for _, base := range baseOrder { // one hoisted set per input
+					r := distinct(bases[base], func(d int) int { return d % n1 })
+					ms += hoistedMS(prof, logN, l, r)
+					nb += r
+				}
+				for _, sum := range sumOrder { // one rotation per giant step of each sum
+					ng += distinct(sums[sum], func(d int) int { return d / n1 })
+				}
+				ms += float64(ng) * cost(CostRotate, l)
+				if ms < best {
+					best, bl.Split, bl.BabySteps, bl.GiantSteps = ms, n1, nb, ng
+				}
+			}
+			bl.MS += best
+			slices.Sort(prodLevels)
+			prodLevels = slices.Compact(prodLevels)
+			bl.Rescales += len(prodLevels)
+			bl.MS += rescalesMS(prof, logN, prodLevels)
+		}
+		// Folds: rotations off the products' paths.
+		block, foldLevel := 0, -1
+		for _, op := range p.Ops {
+			if op.Layer == li && (op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted) && !onPath[op] {
+				for _, s := range op.Steps {
+					if block == 0 || s < block {
+						block = s
+					}
+				}
+				foldLevel = max(foldLevel, level(op.Args[0]))
+			}
+		}
+		if block > 0 {
+			if D%block != 0 {
+				return nil, fmt.Errorf("bound: layer %s: fold step %d does not divide the period %d", info.Name, block, D)
+			}
+			ms, rots := foldMS(prof, logN, foldLevel, D/block)
+			bl.MS += ms
+			bl.Folds = rots
+		}
+		// Ciphertext products and polynomials.
+		for _, op := range p.Ops {
+			if op.Layer != li {
+				continue
+			}
+			switch op.Kind {
+			case ir.OpMul:
+				l := level(op.Args[0])
+				bl.Relins++
+				bl.Rescales++
+				bl.MS += cost(CostMulRelin, l) + cost(CostRescale, l)
+			case ir.OpPoly:
+				d := len(p.Consts[op.Const].Data) - 1
+				l := level(op.Args[0])
+				depth := ir.PolyDepth(d)
+				products := 0
+				if d >= 2 {
+					products = int(math.Ceil(math.Log2(float64(d))))
+				}
+				for t := range depth {
+					if t < products {
+						bl.Relins++
+						bl.MS += cost(CostMulRelin, l-t)
+					}
+					bl.Rescales++
+					bl.MS += cost(CostRescale, l-t)
+				}
+			}
+		}
+		b.Layers = append(b.Layers, bl)
+		b.PlainMuls += bl.Diagonals
+		b.KeySwitches += bl.BabySteps + bl.GiantSteps + bl.Folds + bl.Relins
+		b.Relins += bl.Relins
+		b.Rescales += bl.Rescales
+		b.MS += bl.MS
+	}
+	return b, nil
+}
+
+// hoistedMS prices r rotations of one ciphertext sharing one
+// decomposition: rot + (r−1)·m, m the profile's cost of one more rotation
+// in its hoisted set, clamped to [0, rot].
+func hoistedMS(prof *Profile, logN, level, r int) float64 {
+	if r == 0 {
+		return 0
+	}
+	rot := prof.Cost(CostRotate, logN, max(level, 0))
+	h := prof.Cost(CostHoisted, logN, max(level, 0))
+	m := math.Min(math.Max((h-rot)/(runtime.HoistedSteps-1), 0), rot)
+	return (rot + float64(r-1)*m) / 1e6
+}
+
+// foldMS is the cheapest way to sum n cyclic shifts (by multiples of the
+// block) of one ciphertext in stages: a stage sums a shifts of the current
+// ciphertext with one hoisted set of a−1 rotations (a = 2: one rotation),
+// leaving n/a to sum. It returns the time and the rotations of the
+// cheapest staging.
+func foldMS(prof *Profile, logN, level, n int) (float64, int) {
+	if n <= 1 {
+		return 0, 0
+	}
+	best, bestRots := math.Inf(1), 0
+	for a := 2; a <= n; a++ {
+		if n%a != 0 {
+			continue
+		}
+		rest, rots := foldMS(prof, logN, level, n/a)
+		ms := hoistedMS(prof, logN, level, a-1) + float64(a-1)*prof.Cost(CostAdd, logN, max(level, 0))/1e6 + rest
+		if ms < best {
+			best, bestRots = ms, rots+a-1
+		}
+	}
+	return best, bestRots
+}
+
+// distinct counts the distinct nonzero values of f over ds.
+func distinct(ds []int, f func(int) int) int {
+	seen := map[int]bool{}
+	for _, d := range ds {
+		if v := f(d); v != 0 {
+			seen[v] = true
+		}
+	}
+	return len(seen)
+}
+
+func rescalesMS(prof *Profile, logN int, levels []int) float64 {
+	ms := 0.0
+	for _, l := range levels {
+		ms += prof.Cost(CostRescale, logN, max(l, 0)) / 1e6
+	}
+	return ms
+}
+
+// String is a one-line summary of the bound.
+func (b *Bound) String() string {
+	var parts []string
+	for _, l := range b.Layers {
+		if l.Diagonals == 0 && l.Relins == 0 && l.Rescales == 0 {
+			continue
+		}
+		s := fmt.Sprintf("%s: %d products", l.Layer, l.Diagonals)
+		if l.BabySteps+l.GiantSteps > 0 {
+			s += fmt.Sprintf(", %d+%d rotations (n1=%d)", l.BabySteps, l.GiantSteps, l.Split)
+		}
+		if l.Folds > 0 {
+			s += fmt.Sprintf(", %d fold rotations", l.Folds)
+		}
+		if l.Relins > 0 {
+			s += fmt.Sprintf(", %d relinearizations", l.Relins)
+		}
+		parts = append(parts, s+fmt.Sprintf(", %.1f ms", l.MS))
+	}
+	return strings.Join(parts, "; ")
+}
