@@ -31,11 +31,18 @@ func chooseParams(s *State) error {
 	var why []string
 	why = append(why, fmt.Sprintf("depth %d: the longest chain of rescales and polynomial levels", depth))
 
-	maxBound := 1.0
-	for _, b := range bounds {
-		maxBound = math.Max(maxBound, b)
+	// q0 holds the output at the default scale. Every earlier value lies
+	// at level 1 or above, scaled by at most the square of the scale before
+	// its rescale, under a modulus of at least q0 times two scale-sized
+	// primes: it needs only log2|v| + 1 < log2 q0, far weaker for all but
+	// the largest intermediate values, which raise q0 where they need to.
+	outBound := math.Max(bounds[len(bounds)-1], 1)
+	midBound := 1.0
+	for _, b := range bounds[:len(bounds)-1] {
+		midBound = math.Max(midBound, b)
 	}
-	magnitude := int(math.Ceil(math.Log2(maxBound))) + 1 // sign bit and rounding room
+	magnitude := int(math.Ceil(math.Log2(outBound))) + 1 // sign bit and rounding room
+	midBits := int(math.Ceil(math.Log2(midBound))) + 2
 
 	var chosen *ir.Params
 	for logN := 10; logN <= 15; logN++ {
@@ -55,7 +62,7 @@ func chooseParams(s *State) error {
 		if pin.LogScale != 0 {
 			logScale = pin.LogScale
 		}
-		q0 := min(logScale+magnitude+2, 60) // lattigo takes ciphertext primes of at most 60 bits
+		q0 := min(max(logScale+magnitude+2, midBits), 60) // lattigo takes ciphertext primes of at most 60 bits
 		logQ := make([]int, depth+1)
 		logQ[0] = q0
 		for i := 1; i <= depth; i++ {
@@ -107,7 +114,7 @@ func chooseParams(s *State) error {
 	c.Q, c.P = q, pp
 	why = append(why,
 		fmt.Sprintf("scale 2^%d: %d bits of precision asked, noise and its growth through the model (gain %.3g)", c.LogScale, g.Precision, gain),
-		fmt.Sprintf("q0 of %d bits: values up to %.3g at the default scale", c.LogQ[0], maxBound),
+		fmt.Sprintf("q0 of %d bits: outputs up to %.3g at the default scale (interval arithmetic over the declared input range)", c.LogQ[0], outBound),
 		fmt.Sprintf("logN %d: smallest ring whose 128-bit bound (%d) holds log2(QP) = %d and %d slots hold the period %d",
 			c.LogN, c.SecurityBound, c.LogQP, 1<<(c.LogN-1), p.Period))
 	c.Why = why
@@ -138,64 +145,6 @@ func programDepth(p *ir.Program) int {
 		depth = max(depth, u)
 	}
 	return depth
-}
-
-// valueBounds bounds |value| at the input and after every layer of the
-// (folded) graph by interval arithmetic from the declared input range.
-func valueBounds(g *ir.Graph) []float64 {
-	b := math.Max(math.Abs(g.Input.Min), math.Abs(g.Input.Max))
-	out := []float64{b}
-	for _, l := range g.Layers {
-		switch l.Kind {
-		case ir.Dense:
-			nb := 0.0
-			for i, row := range l.Weights {
-				sum := math.Abs(l.Bias[i])
-				for _, w := range row {
-					sum += math.Abs(w) * b
-				}
-				nb = math.Max(nb, sum)
-			}
-			b = nb
-		case ir.Linear:
-			nb := 0.0
-			for i, row := range l.Map.Row {
-				sum := 0.0
-				if l.Bias != nil {
-					sum = math.Abs(l.Bias[i])
-				}
-				for _, e := range row {
-					sum += math.Abs(e.Val) * b
-				}
-				nb = math.Max(nb, sum)
-			}
-			b = nb
-		case ir.Activation:
-			b = actBound(l.Act, b)
-		}
-		out = append(out, b)
-	}
-	return out
-}
-
-func actBound(a *ir.Act, b float64) float64 {
-	switch {
-	case a.Func == ir.Square:
-		return b * b
-	case a.Basis == ir.Chebyshev:
-		// Inputs are declared to lie in the interval; evaluate on it.
-		var m float64
-		for i := 0; i <= 1024; i++ {
-			m = math.Max(m, math.Abs(ir.EvalPoly(ir.Chebyshev, a.Coeffs, -1+2*float64(i)/1024)))
-		}
-		return m
-	default:
-		var m float64
-		for j, c := range a.Coeffs {
-			m += math.Abs(c) * math.Pow(b, float64(j))
-		}
-		return m
-	}
 }
 
 // noiseGain estimates how much the errors that encryption adds grow by the
