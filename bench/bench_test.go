@@ -1,0 +1,314 @@
+package bench
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"flag"
+	"fmt"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	goruntime "runtime"
+	"slices"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/lanthorn/lanthorn/emit"
+	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/passes"
+	"github.com/lanthorn/lanthorn/runtime"
+	"github.com/lanthorn/lanthorn/spec"
+)
+
+var (
+	runs       = flag.Int("runs", 7, "timed evaluations of each optimised program (the median is reported)")
+	naiveRuns  = flag.Int("naive-runs", 3, "timed evaluations of each naive program; 1 where the plan estimates more than -slow-ms")
+	slowMS     = flag.Float64("slow-ms", 3000, "planned latency (ms) above which a naive program is timed once")
+	keyBudget  = flag.Float64("key-budget-mb", 6000, "a naive program whose evaluation keys exceed this many MB (by its plan) is not run")
+	opReps     = flag.Int("op-reps", 5, "runs of each primitive in the measurement that prices the lower bound (the median is kept)")
+	onlyModels = flag.String("models", "", "comma-separated model names to run, e.g. demo/gearbox,mnist/digits (default: all)")
+	timeout    = flag.Duration("program-timeout", 10*time.Minute, "limit on one program's bench command")
+)
+
+// repoRoot is the repository root, relative to this package.
+const repoRoot = ".."
+
+// BenchmarkModels is the benchmark: for each testdata model it builds the
+// optimised and the naive program, runs their bench commands, prices the
+// lower bound with primitives measured on this machine in this run, and
+// prints the table (see package doc). Figures are to be read as ratios
+// within this one run: the machine is shared.
+func BenchmarkModels(b *testing.B) {
+	ms, err := models(*onlyModels)
+	if err != nil {
+		b.Fatal(err)
+	}
+	for range b.N {
+		start := time.Now()
+		var rows []modelRow
+		for _, m := range ms {
+			row, err := benchModel(b, m)
+			if err != nil {
+				b.Fatalf("%s: %v", m.name, err)
+			}
+			rows = append(rows, row)
+		}
+		var out bytes.Buffer
+		writeTable(&out, rows, *keyBudget)
+		fmt.Fprintf(&out, "\nmachine: %s/%s, %d cores (GOMAXPROCS %d); whole run %s\n", goruntime.GOOS, goruntime.GOARCH,
+			goruntime.NumCPU(), goruntime.GOMAXPROCS(0), time.Since(start).Round(time.Second))
+		os.Stdout.Write(out.Bytes())
+		reportGeomeans(b, rows)
+	}
+}
+
+// model is one testdata spec.
+type model struct {
+	name string // e.g. "demo/gearbox"
+	spec string // path from the repository root, slash-separated
+}
+
+// models lists the demo, the small models and the digit classifier, in
+// that order, or the named ones among them.
+func models(only string) ([]model, error) {
+	small, err := filepath.Glob(filepath.Join(repoRoot, "testdata", "models", "*.yaml"))
+	if err != nil {
+		return nil, err
+	}
+	slices.Sort(small)
+	paths := []string{"testdata/demo/gearbox.yaml"}
+	for _, p := range small {
+		rel, err := filepath.Rel(repoRoot, p)
+		if err != nil {
+			return nil, err
+		}
+		paths = append(paths, filepath.ToSlash(rel))
+	}
+	paths = append(paths, "testdata/mnist/digits.yaml")
+	var out []model
+	for _, p := range paths {
+		out = append(out, model{name: strings.TrimSuffix(strings.TrimPrefix(p, "testdata/"), ".yaml"), spec: p})
+	}
+	if only == "" {
+		return out, nil
+	}
+	var picked []model
+	for _, name := range strings.Split(only, ",") {
+		i := slices.IndexFunc(out, func(m model) bool { return m.name == strings.TrimSpace(name) })
+		if i < 0 {
+			return nil, fmt.Errorf("-models: no model %q", name)
+		}
+		picked = append(picked, out[i])
+	}
+	return picked, nil
+}
+
+// benchResult is what an emitted program's `bench -json` prints.
+type benchResult struct {
+	Model    string  `json:"model"`
+	Threads  int     `json:"threads"`
+	Runs     int     `json:"runs"`
+	MedianMS float64 `json:"median_ms"`
+	MinMS    float64 `json:"min_ms"`
+	MaxMS    float64 `json:"max_ms"`
+	KeysMB   float64 `json:"keys_mb"`
+	PeakMB   float64 `json:"peak_mb"`
+	LoadMS   float64 `json:"load_ms"`
+	KeygenMS float64 `json:"keygen_ms"`
+}
+
+// variantRow is one program of a model: measured, or why not.
+type variantRow struct {
+	variant  string // "optimised" or "naive"
+	plan     *passes.Plan
+	result   *benchResult // nil when not measured
+	skipped  string       // why it was not measured
+	planKeys float64      // evaluation-key MB by the plan
+}
+
+// modelRow is one model's rows of the table.
+type modelRow struct {
+	name       string
+	opt, naive variantRow
+	bound      *passes.Bound // of the optimised program, priced with the measured primitives
+	boundErr   error
+	ops        string // the measured primitives, in brief
+}
+
+func benchModel(b *testing.B, m model) (modelRow, error) {
+	row := modelRow{name: m.name}
+	path := filepath.Join(repoRoot, filepath.FromSlash(m.spec))
+	g, inputs, err := spec.LoadWithFiles(path)
+	if err != nil {
+		return row, err
+	}
+	sum, err := emit.InputsSHA256(os.DirFS(filepath.Dir(path)), inputs)
+	if err != nil {
+		return row, err
+	}
+	build := func(naive bool) (emit.Files, *passes.State, error) {
+		return emit.Build(g, passes.Options{Naive: naive}, emit.Options{SpecPath: m.spec, InputsSHA256: sum})
+	}
+	optFiles, optSt, err := build(false)
+	if err != nil {
+		return row, fmt.Errorf("build: %w", err)
+	}
+	naiveFiles, naiveSt, err := build(true)
+	if err != nil {
+		return row, fmt.Errorf("build -naive: %w", err)
+	}
+	ref := passes.DefaultProfile()
+	row.opt = variantRow{variant: "optimised", plan: passes.MakePlan(optSt, ref)}
+	row.naive = variantRow{variant: "naive", plan: passes.MakePlan(naiveSt, ref)}
+	row.opt.planKeys = float64(row.opt.plan.Keys.Bytes) / 1e6
+	row.naive.planKeys = float64(row.naive.plan.Keys.Bytes) / 1e6
+
+	// The lower bound, priced with primitives measured now, at the
+	// optimised program's own parameters.
+	prof, ops, err := measure(optSt.Prog.Params)
+	if err != nil {
+		row.boundErr = err
+	} else {
+		row.ops = ops
+		row.bound, row.boundErr = passes.LowerBound(optSt.Prog, prof)
+	}
+
+	if row.opt.result, err = buildAndRun(b, optFiles, optSt.Prog.Name, *runs); err != nil {
+		return row, fmt.Errorf("optimised program: %w", err)
+	}
+	switch {
+	case row.naive.planKeys > *keyBudget:
+		row.naive.skipped = fmt.Sprintf("not measured: its %d evaluation keys take %.0f MB by the plan, above the %.0f MB budget (-key-budget-mb)",
+			row.naive.plan.Keys.Count, row.naive.planKeys, *keyBudget)
+	default:
+		n := *naiveRuns
+		if row.naive.plan.EstimateMS > *slowMS {
+			n = 1
+		}
+		if row.naive.result, err = buildAndRun(b, naiveFiles, naiveSt.Prog.Name, n); err != nil {
+			return row, fmt.Errorf("naive program: %w", err)
+		}
+	}
+	return row, nil
+}
+
+// measure times the primitives with lattigo at the ring degree and
+// modulus chain of the program, at the first, middle and top level, and
+// fits a profile to them.
+func measure(pr ir.Params) (*passes.Profile, string, error) {
+	top := len(pr.LogQ) - 1
+	if top < 2 {
+		return nil, "", fmt.Errorf("measure: %d levels; the profile needs two levels from 1 up", top)
+	}
+	levels := slices.Compact([]int{1, (top + 1) / 2, top})
+	ts, err := runtime.MeasureOps(pr.LogN, pr.LogQ, pr.LogP, levels, *opReps)
+	if err != nil {
+		return nil, "", err
+	}
+	prof, err := passes.FitProfile(fmt.Sprintf("this run (logN %d)", pr.LogN), ts)
+	if err != nil {
+		return nil, "", err
+	}
+	t := ts[len(ts)-1]
+	brief := fmt.Sprintf("logN %d level %d: rotation %.1f ms, 4 hoisted %.1f ms, ct product+relin %.1f ms, pt product %.2f ms, rescale %.2f ms",
+		pr.LogN, t.Level, t.Rotate/1e6, t.Hoisted/1e6, t.MulRelin/1e6, t.MulPlain/1e6, t.Rescale/1e6)
+	return prof, brief, nil
+}
+
+// buildAndRun writes a program into a fresh folder outside the
+// repository, builds it as a user would (no workspace, module cache only,
+// read-only go.mod) and runs its bench command.
+func buildAndRun(b *testing.B, files emit.Files, name string, n int) (*benchResult, error) {
+	dir := b.TempDir()
+	for _, p := range files.Paths() {
+		dst := filepath.Join(dir, filepath.FromSlash(p))
+		if err := os.MkdirAll(filepath.Dir(dst), 0o755); err != nil {
+			return nil, err
+		}
+		if err := os.WriteFile(dst, files[p], 0o644); err != nil {
+			return nil, err
+		}
+	}
+	bin := filepath.Join(dir, "bin", name)
+	cmd := exec.Command("go", "build", "-o", bin, "./cmd/"+name)
+	cmd.Dir, cmd.Env = dir, goEnv()
+	if out, err := cmd.CombinedOutput(); err != nil {
+		return nil, fmt.Errorf("go build: %w\n%s", err, out)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), *timeout)
+	defer cancel()
+	var stdout, stderr bytes.Buffer
+	cmd = exec.CommandContext(ctx, bin, "bench", "-json", "-n", strconv.Itoa(n))
+	cmd.Dir, cmd.Stdout, cmd.Stderr = dir, &stdout, &stderr
+	if err := cmd.Run(); err != nil {
+		return nil, fmt.Errorf("%s bench: %w\nstderr:\n%s", name, err, stderr.String())
+	}
+	var r benchResult
+	dec := json.NewDecoder(&stdout)
+	if err := dec.Decode(&r); err != nil {
+		return nil, fmt.Errorf("%s bench -json: %w; output:\n%s", name, err, stdout.String())
+	}
+	if r.Runs != n || r.MedianMS <= 0 {
+		return nil, fmt.Errorf("%s bench -json: %d runs, median %g ms; want %d runs and a positive median", name, r.Runs, r.MedianMS, n)
+	}
+	return &r, nil
+}
+
+// goEnv is the environment of a user's go command: this one's without Go
+// settings (a CI job's GOFLAGS or GOWORK must not leak in) except where
+// the caches are, then no workspace, no toolchain download, read-only
+// module files.
+func goEnv() []string {
+	var env []string
+	for _, kv := range os.Environ() {
+		k, _, _ := strings.Cut(kv, "=")
+		if (strings.HasPrefix(k, "GO") || strings.HasPrefix(k, "CGO_")) &&
+			k != "GOCACHE" && k != "GOMODCACHE" && k != "GOPATH" && k != "GOROOT" && k != "GOPROXY" {
+			continue
+		}
+		env = append(env, kv)
+	}
+	return append(env, "GOWORK=off", "GOTOOLCHAIN=local", "GOFLAGS=-mod=readonly")
+}
+
+// reportGeomeans reports the geometric means of the ratios over the models
+// where both sides were measured, for benchstat.
+func reportGeomeans(b *testing.B, rows []modelRow) {
+	var vsNaive, vsBound []float64
+	for _, r := range rows {
+		if o, n := r.opt.result, r.naive.result; o != nil && n != nil {
+			vsNaive = append(vsNaive, o.MedianMS/n.MedianMS)
+		}
+		if r.opt.result != nil && r.bound != nil {
+			vsBound = append(vsBound, r.opt.result.MedianMS/boundMS(r))
+		}
+	}
+	if len(vsNaive) > 0 {
+		b.ReportMetric(geomean(vsNaive), "opt/naive")
+	}
+	if len(vsBound) > 0 {
+		b.ReportMetric(geomean(vsBound), "opt/bound")
+	}
+}
+
+func geomean(v []float64) float64 {
+	s := 0.0
+	for _, x := range v {
+		s += math.Log(x)
+	}
+	return math.Exp(s / float64(len(v)))
+}
+
+// boundMS is the lower bound for the optimised program's thread count: the
+// work priced at one thread divided by the threads (perfect parallelism).
+func boundMS(r modelRow) float64 {
+	t := 1
+	if r.opt.result != nil && r.opt.result.Threads > 1 {
+		t = r.opt.result.Threads
+	}
+	return r.bound.MS / float64(t)
+}
