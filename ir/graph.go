@@ -242,6 +242,9 @@ type Act struct {
 	Coeffs   []float64  // in Basis; for Chebyshev, over Interval
 	Interval [2]float64 // the input interval the approximation holds on
 	Degree   int        // declared degree (Chebyshev interpolants)
+	// Tolerance, when positive, is the largest absolute error allowed over
+	// Interval; the planner then chooses the degree (Degree is 0).
+	Tolerance float64
 }
 
 // Degree returns the polynomial degree the activation evaluates.

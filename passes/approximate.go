@@ -28,6 +28,12 @@ func approximate(s *State) error {
 		if !(lo < hi) || math.IsInf(lo, 0) || math.IsInf(hi, 0) {
 			return fmt.Errorf("%s: %s: interval [%g, %g] is empty", l.Pos, l.Name, lo, hi)
 		}
+		if a.Tolerance > 0 {
+			if err := approximateToTolerance(s, l, f); err != nil {
+				return err
+			}
+			continue
+		}
 		if a.Degree == 0 {
 			a.Degree = defaultDegree[a.Func]
 		}

@@ -29,7 +29,7 @@ func lower(s *State) error {
 	for i, l := range g.Layers {
 		info := &ir.LayerInfo{Name: l.Name, Pos: l.Pos}
 		p.Layers = append(p.Layers, info)
-		b := &builder{p: p, layer: i, prefix: identifier(l.Name)}
+		b := &builder{p: p, layer: i, prefix: identifier(l.Name), method: s.Opts.Method}
 		b.naive = s.Opts.Naive
 		var err error
 		switch l.Kind {
@@ -58,7 +58,8 @@ type builder struct {
 	p      *ir.Program
 	layer  int
 	prefix string
-	naive  bool // Options.Naive: naiveMatVec (naive.go)
+	method map[string]Method // the selection's matrix methods (method.go)
+	naive  bool              // Options.Naive: naiveMatVec (naive.go)
 }
 
 func (b *builder) op(kind ir.OpKind, name string, args ...ir.ValueID) ir.ValueID {
@@ -143,7 +144,7 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 	if B := nextPow2(l.Out); B < D {
 		h := blockDiags(diags, l.Out, B, D)
 		hn1, hcost := bestBabySteps(h, D)
-		if hcost += log2(D / B); hcost < cost {
+		if hcost += log2(D / B); useBlocks(b.method, l.Name, cost, hcost) {
 			diags, n1, block = h, hn1, B
 		}
 	}

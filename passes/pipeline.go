@@ -73,6 +73,15 @@ type Options struct {
 	// KeepApart names linear layers that merge-linear must not merge into
 	// the linear layer before them (the selection pass sets it).
 	KeepApart map[string]bool
+	// Degree gives the interpolant degree of activations declared with a
+	// tolerance, by layer name (the selection sets it; one of
+	// Report.Degrees).
+	Degree map[string]int
+	// Method gives the matrix method of linear layers by (merged) layer
+	// name; absent, lower takes the one with fewer rotations.
+	Method map[string]Method
+	// Objective is what the selection minimises.
+	Objective Objective
 	// Naive lowers without the ciphertext-level optimisations, as the
 	// benchmark's yardstick: one rotation per diagonal, a rescale after
 	// every product, eager relinearization (naive.go).
@@ -85,7 +94,12 @@ type Report struct {
 	// Mergeable lists the linear layers merge-linear could merge into the
 	// one before them, merged or not: the selection's choices.
 	Mergeable []string
-	Dumps     map[string]string
+	// Degrees lists, per activation declared with a tolerance, the
+	// interpolants that meet it: the selection's choices.
+	Degrees map[string][]DegreeOption
+	// Choices are the selection's decisions, each with its runner-up.
+	Choices []Choice
+	Dumps   map[string]string
 }
 
 // State is what passes read and write.

@@ -19,6 +19,8 @@ type Plan struct {
 	Notes      []string   `json:"notes"`
 	// Alternatives are the variants the selection compiled, cheapest first.
 	Alternatives []string `json:"alternatives,omitempty"`
+	// Choices are the selection's decisions with their runner-ups.
+	Choices []Choice `json:"choices,omitempty"`
 }
 
 // PlanParams are the chosen CKKS parameters.
@@ -72,6 +74,7 @@ func MakePlan(st *State, prof *Profile) *Plan {
 		EstimateMS: est.TotalMS,
 		Profile:    prof.Machine,
 		Notes:      st.Report.Notes,
+		Choices:    st.Report.Choices,
 	}
 	for i, l := range p.Layers {
 		row := PlanRow{Layer: l.Name, Source: l.Pos.String(), Kind: l.Kind, LevelIn: l.LevelIn, LevelOut: l.LevelOut,

@@ -1,9 +1,10 @@
 package passes
 
 import (
+	"errors"
 	"fmt"
 	"math"
-	"sort"
+	"slices"
 	"strings"
 
 	"github.com/lanthorn/lanthorn/ir"
@@ -19,13 +20,31 @@ const (
 	KeyBytes
 )
 
-// maxSelect bounds the merge decisions enumerated exhaustively (2^maxSelect
-// compilations); beyond it the remaining pairs are merged.
-const maxSelect = 6
+// ParseObjective reads an objective's name: latency or keys.
+func ParseObjective(s string) (Objective, error) {
+	switch s {
+	case "latency":
+		return Latency, nil
+	case "keys":
+		return KeyBytes, nil
+	}
+	return Latency, fmt.Errorf("unknown objective %q (want latency or keys)", s)
+}
 
-// Candidate is one variant the selection compiled and priced.
+func (o Objective) String() string {
+	if o == KeyBytes {
+		return "keys"
+	}
+	return "latency"
+}
+
+// Candidate is one variant the selection compiled and priced: the best of
+// its ring degree, depth and layout period.
 type Candidate struct {
-	Apart     []string // linear layers kept apart from the one before them
+	Variant   string // its decisions, e.g. "b: kept apart; act1: degree 7 …; ring: logN 14, depth 6"
+	Apart     []string
+	Degrees   map[string]int
+	Methods   map[string]Method
 	LogN      int
 	Depth     int
 	Rotations int
@@ -35,82 +54,165 @@ type Candidate struct {
 }
 
 func (c Candidate) String() string {
-	v := "all linear runs merged"
-	if len(c.Apart) > 0 {
-		v = "kept apart: " + strings.Join(c.Apart, ", ")
-	}
 	if c.Err != nil {
-		return fmt.Sprintf("%s: does not fit (%v)", v, c.Err)
+		return fmt.Sprintf("%s: does not fit (%v)", c.Variant, c.Err)
 	}
-	return fmt.Sprintf("%s: logN %d, depth %d, %d rotations, %.1f ms, keys %.1f MB", v, c.LogN, c.Depth, c.Rotations, c.EstMS, float64(c.KeyBytes)/1e6)
+	return fmt.Sprintf("%s: logN %d, depth %d, %d rotations, %.1f ms, keys %.1f MB", c.Variant, c.LogN, c.Depth, c.Rotations, c.EstMS, float64(c.KeyBytes)/1e6)
 }
 
-// Select chooses, jointly with the parameters, whether each run of adjacent
-// linear layers is merged into one map (one level, more diagonals) or kept
-// apart (a level each, fewer rotations): it compiles every combination —
-// each compilation picks its own ring degree and chain for its depth — prices
-// it with the cost model and keeps the cheapest. The choice and the
-// runner-up, with their estimated costs, are recorded in the report.
-// Enumeration is exhaustive, which is exact for up to maxSelect decisions;
-// models with more are not searched beyond the first maxSelect.
+// Choice is one decision of the selection with its runner-up: the best
+// variant that decides otherwise, compiled and priced like the chosen one.
+type Choice struct {
+	Decision       string  `json:"decision"` // "b: merge", "act1: degree", "a_b: method", "ring"
+	Chosen         string  `json:"chosen"`
+	ChosenMS       float64 `json:"chosen_ms"`
+	ChosenKeyBytes int64   `json:"chosen_key_bytes"`
+	// RunnerUp is what the runner-up decides differently (its other
+	// decisions follow), "" when nothing else is possible.
+	RunnerUp         string  `json:"runner_up,omitempty"`
+	RunnerUpMS       float64 `json:"runner_up_ms,omitempty"`
+	RunnerUpKeyBytes int64   `json:"runner_up_key_bytes,omitempty"`
+	RunnerUpErr      string  `json:"runner_up_error,omitempty"` // the runner-up does not compile
+}
+
+// Select chooses, jointly with the parameters, every variant the compiler
+// offers: whether each run of adjacent linear layers is merged into one map
+// (one level, more diagonals) or kept apart (a level each, fewer
+// rotations), the degree of each activation declared with a tolerance
+// (fewer levels, or a closer fit), and each linear layer's matrix method
+// (baby-step giant-step over the whole period, or blocks for a short
+// output). The segments (a layer, or a merged run) are lowered once each
+// and priced with the profile at the levels they would run at; for every
+// layout period and depth, the params pass sizes the ring degree and chain,
+// and dynamic programming over (layer, levels consumed) finds the cheapest
+// sequence of segments (selectdp.go). The best of each period and depth is
+// compiled and priced exactly; the cheapest that compiles wins. Every
+// decision and its runner-up (the best variant that decides otherwise,
+// compiled too) are recorded in the report with their estimated costs.
 func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Program, *State, []Candidate, error) {
 	prog, st, err := Compile(g, opts)
-	if st == nil || (err != nil && len(st.Report.Mergeable) == 0) {
+	if err != nil {
 		return prog, st, nil, err
 	}
-	names := st.Report.Mergeable
-	if len(names) == 0 {
-		return prog, st, nil, nil
+	pre, err := graphBefore(g, opts, "merge-linear")
+	if err != nil {
+		return nil, st, nil, err
 	}
-	if len(names) > maxSelect {
-		names = names[:maxSelect]
-	}
-	type result struct {
+	se := &searcher{sp: newSegmentSpace(pre.Graph, pre.Report.Degrees, opts), prof: prof, obj: obj, final: st.Graph, cells: map[[2]int]*cell{}}
+	sols, misfits := se.search(constraint{})
+	type compiled struct {
+		sol  *solution
 		c    Candidate
 		prog *ir.Program
 		st   *State
 	}
-	var results []result
-	for mask := 0; mask < 1<<len(names); mask++ {
-		o := opts
-		o.KeepApart = map[string]bool{}
-		var apart []string
-		for i, n := range names {
-			if mask&(1<<i) != 0 {
-				o.KeepApart[n] = true
-				apart = append(apart, n)
+	var done []compiled
+	for _, sol := range sols {
+		c, p, s := se.compile(g, opts, sol)
+		done = append(done, compiled{sol, c, p, s})
+	}
+	exact := func(c Candidate) score {
+		if c.Err != nil {
+			return inf
+		}
+		return score{ms: c.EstMS, keys: int(min(c.KeyBytes, math.MaxInt32))}
+	}
+	slices.SortStableFunc(done, func(a, b compiled) int {
+		switch {
+		case better(exact(a.c), exact(b.c), obj):
+			return -1
+		case better(exact(b.c), exact(a.c), obj):
+			return 1
+		}
+		return 0
+	})
+	if len(done) == 0 || done[0].c.Err != nil {
+		// Nothing the search proposed compiles: keep the default
+		// compilation, which did, and say why.
+		st.note("selection: no variant beyond the default compiled (%v)", errors.Join(misfits...))
+		return prog, st, nil, nil
+	}
+	best := done[0]
+	var cands []Candidate
+	for _, d := range done {
+		cands = append(cands, d.c)
+	}
+	best.st.Report.Choices = se.choices(g, opts, best.sol, best.c)
+	return best.prog, best.st, cands, nil
+}
+
+// compile builds and prices one solution.
+func (se *searcher) compile(g *ir.Graph, base Options, sol *solution) (Candidate, *ir.Program, *State) {
+	o := se.options(base, sol)
+	keys, val := se.decisions(sol)
+	var parts []string
+	for _, k := range keys {
+		parts = append(parts, k+" "+val[k])
+	}
+	c := Candidate{Variant: strings.Join(parts, "; "), Degrees: o.Degree, Methods: o.Method}
+	for _, l := range se.sp.layers {
+		if o.KeepApart[l.Name] {
+			c.Apart = append(c.Apart, l.Name)
+		}
+	}
+	p, s, err := Compile(g, o)
+	if err != nil {
+		c.Err = err
+		return c, nil, nil
+	}
+	plan := MakePlan(s, se.prof)
+	c.LogN, c.Depth, c.Rotations = p.Params.LogN, plan.Params.Depth, len(p.Rotations)
+	c.EstMS, c.KeyBytes = plan.EstimateMS, plan.Keys.Bytes
+	return c, p, s
+}
+
+// choices lists every decision of sol with its runner-up.
+func (se *searcher) choices(g *ir.Graph, opts Options, sol *solution, chosen Candidate) []Choice {
+	keys, val := se.decisions(sol)
+	var out []Choice
+	for _, k := range keys {
+		ch := Choice{Decision: k, Chosen: val[k], ChosenMS: chosen.EstMS, ChosenKeyBytes: chosen.KeyBytes}
+		alts, _ := se.search(se.forbidChoice(sol, k))
+		if len(alts) > 0 {
+			alt := alts[0]
+			akeys, aval := se.decisions(alt)
+			var diff []string
+			for _, ak := range akeys {
+				if ak != k && aval[ak] != val[ak] {
+					diff = append(diff, ak+" "+aval[ak])
+				}
+			}
+			switch {
+			case aval[k] == "": // the runner-up splits the layers otherwise
+				ch.RunnerUp = strings.Join(diff, "; ")
+			case len(diff) > 0:
+				ch.RunnerUp = aval[k] + " (" + strings.Join(diff, "; ") + ")"
+			default:
+				ch.RunnerUp = aval[k]
+			}
+			c, _, _ := se.compile(g, opts, alt)
+			if c.Err != nil {
+				ch.RunnerUpErr = c.Err.Error()
+			} else {
+				ch.RunnerUpMS, ch.RunnerUpKeyBytes = c.EstMS, c.KeyBytes
 			}
 		}
-		p, s, err := Compile(g, o)
-		c := Candidate{Apart: apart, Err: err}
-		if err == nil {
-			plan := MakePlan(s, prof)
-			c.LogN, c.Depth, c.Rotations = p.Params.LogN, plan.Params.Depth, len(p.Rotations)
-			c.EstMS, c.KeyBytes = plan.EstimateMS, plan.Keys.Bytes
+		out = append(out, ch)
+	}
+	return out
+}
+
+// graphBefore runs the graph passes of the pipeline that come before the
+// pass named stop and returns their state.
+func graphBefore(g *ir.Graph, opts Options, stop string) (*State, error) {
+	s := &State{Source: g, Graph: cloneGraph(g), Opts: opts, Report: &Report{Dumps: map[string]string{}}}
+	for _, p := range Pipeline {
+		if p.Name == stop {
+			return s, nil
 		}
-		results = append(results, result{c, p, s})
-	}
-	cost := func(c Candidate) float64 {
-		if c.Err != nil {
-			return math.Inf(1)
+		if err := p.Run(s); err != nil {
+			return s, err
 		}
-		if obj == KeyBytes {
-			return float64(c.KeyBytes)
-		}
-		return c.EstMS
 	}
-	sort.SliceStable(results, func(i, j int) bool { return cost(results[i].c) < cost(results[j].c) })
-	best := results[0]
-	if best.c.Err != nil {
-		return nil, best.st, nil, best.c.Err
-	}
-	cands := make([]Candidate, len(results))
-	for i, r := range results {
-		cands[i] = r.c
-	}
-	best.st.note("selection: chose %s", best.c)
-	if len(results) > 1 {
-		best.st.note("selection: runner-up %s", results[1].c)
-	}
-	return best.prog, best.st, cands, nil
+	return nil, fmt.Errorf("internal error: no pass %q in the pipeline", stop)
 }

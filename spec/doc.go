@@ -17,6 +17,7 @@
 //	output:
 //	  name: risk                # optional, default "output"
 //	precision: 20               # optional: bits of absolute precision wanted on outputs, 4..50, default 20
+//	tolerance: 0.05             # optional: default tolerance of every relu, sigmoid and tanh without degree or tolerance
 //	insecure: false             # optional: allow parameters past the 128-bit security bound, default false
 //	params:                     # optional: pin CKKS parameters; each key optional
 //	  logN: 14                  # ring degree log2, 10..17
@@ -32,7 +33,8 @@
 //	  - kind: activation
 //	    function: tanh          # square | poly | relu | sigmoid | tanh
 //	    interval: [-4, 4]       # the inputs of the activation lie in [a, b]
-//	    degree: 7               # optional: degree of the interpolant, 1..63
+//	    degree: 7               # optional: degree of the interpolant, 1..63 (or tolerance, not both)
+//	    # tolerance: 0.01         # optional: largest absolute error allowed; the planner chooses the degree
 //	  - kind: dense
 //	    out: 2
 //	    weights:                # inline: out rows of in numbers
@@ -68,6 +70,18 @@
 //     degree on interval, which is required and must hold every input the
 //     activation sees: outside it the approximation is meaningless. The
 //     default degree is 15 for relu and 7 for sigmoid and tanh.
+//     Instead of degree, tolerance (a number from 1e-12 to 1000) bounds the
+//     absolute error |f(x) − p(x)| over the interval, and the planner
+//     chooses the degree: it offers, for each number of levels, the
+//     smallest degree whose error meets the tolerance, and picks among
+//     them jointly with its other choices (fewer levels cost less and may
+//     fit a smaller ring). The error is measured on 4097 evenly spaced
+//     points of the interval and 1025 Chebyshev points (cos(πk/1024),
+//     mapped onto it), so it is the error at those points, not a proven
+//     bound between them. A top-level tolerance is the default for every
+//     relu, sigmoid and tanh that gives neither degree nor tolerance;
+//     degree and tolerance on one layer are an error, and so is a
+//     tolerance that no degree up to 63 meets (the error names the layer).
 //
 // # Images and tensor layers
 //

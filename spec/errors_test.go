@@ -56,7 +56,7 @@ func TestParseErrors(t *testing.T) {
 
 		// Top level.
 		{"unknown top-level key", "lanthorn: 1\nmodel: gearbox\ninput: {size: 2, range: [0, 1]}\nlayer: []\n", nil, []string{
-			`gearbox.yaml:4:1: unknown key "layer" at top level; expected one of: lanthorn, model, description, input, output, precision, insecure, params, layers`,
+			`gearbox.yaml:4:1: unknown key "layer" at top level; expected one of: lanthorn, model, description, input, output, precision, tolerance, insecure, params, layers`,
 			`gearbox.yaml:1:1: missing required key "layers"`}},
 		{"duplicate top-level key", "lanthorn: 1\nmodel: gearbox\nmodel: again\n", nil, []string{
 			`gearbox.yaml:3:1: duplicate key "model" at top level (first at gearbox.yaml:2:1)`}},
@@ -204,7 +204,7 @@ func TestParseErrors(t *testing.T) {
 
 		// Activation layers.
 		{"unknown key in activation", head + "  - kind: activation\n    function: square\n    out: 2\n", nil, []string{
-			`gearbox.yaml:9:5: unknown key "out" in activation layer; expected one of: name, function, interval, degree, coefficients`}},
+			`gearbox.yaml:9:5: unknown key "out" in activation layer; expected one of: name, function, interval, degree, tolerance, coefficients`}},
 		{"function missing", head + "  - kind: activation\n", nil, []string{
 			`gearbox.yaml:7:5: act1: missing required key "function" (square, poly, relu, sigmoid or tanh)`}},
 		{"function unknown", head + "  - kind: activation\n    function: gelu\n", nil, []string{
@@ -219,6 +219,20 @@ func TestParseErrors(t *testing.T) {
 			`gearbox.yaml:10:13: act1: degree: found integer 64, expected an integer from 1 to 63`}},
 		{"degree zero", head + "  - kind: activation\n    function: sigmoid\n    interval: [-8, 8]\n    degree: 0\n", nil, []string{
 			`gearbox.yaml:10:13: act1: degree: found integer 0, expected an integer from 1 to 63`}},
+		{"tolerance and degree", head + "  - kind: activation\n    function: tanh\n    interval: [-2, 2]\n    degree: 7\n    tolerance: 0.01\n", nil, []string{
+			`gearbox.yaml:11:5: act1: both degree and tolerance given; give degree to fix the interpolant, or tolerance to let the planner choose the degree`}},
+		{"tolerance zero", head + "  - kind: activation\n    function: relu\n    interval: [-2, 2]\n    tolerance: 0\n", nil, []string{
+			`gearbox.yaml:10:16: act1: tolerance: found 0, expected a number from 1e-12 to 1000 (the largest absolute error allowed, e.g. 0.01)`}},
+		{"tolerance negative", head + "  - kind: activation\n    function: relu\n    interval: [-2, 2]\n    tolerance: -0.1\n", nil, []string{
+			`gearbox.yaml:10:16: act1: tolerance: found -0.1, expected a number from 1e-12 to 1000`}},
+		{"tolerance not a number", head + "  - kind: activation\n    function: sigmoid\n    interval: [-2, 2]\n    tolerance: small\n", nil, []string{
+			`gearbox.yaml:10:16: act1: tolerance: found string "small", expected a number (the largest absolute error allowed, e.g. 0.01)`}},
+		{"tolerance on square", head + "  - kind: activation\n    function: square\n    tolerance: 0.1\n", nil, []string{
+			`gearbox.yaml:9:5: act1: tolerance is only for relu, sigmoid and tanh; square is evaluated exactly`}},
+		{"tolerance on poly", head + "  - kind: activation\n    function: poly\n    coefficients: [0, 1]\n    tolerance: 0.1\n", nil, []string{
+			`gearbox.yaml:10:5: act1: tolerance is only for relu, sigmoid and tanh; poly is evaluated exactly`}},
+		{"model tolerance infinite", "lanthorn: 1\nmodel: gearbox\ntolerance: .inf\ninput:\n  size: 2\n  range: [-4, 4]\nlayers:\n  - kind: activation\n    function: tanh\n    interval: [-1, 1]\n", nil, []string{
+			`gearbox.yaml:3:12: tolerance: found`}},
 		{"degree on square", head + "  - kind: activation\n    function: square\n    degree: 2\n", nil, []string{
 			`gearbox.yaml:9:5: act1: degree is only for relu, sigmoid and tanh; square is exactly degree 2`}},
 		{"degree on poly", head + "  - kind: activation\n    function: poly\n    coefficients: [0, 1]\n    degree: 1\n", nil, []string{

@@ -11,7 +11,7 @@ import (
 
 var (
 	denseKeys  = []string{"name", "out", "weights", "bias"}
-	actKeys    = []string{"name", "function", "interval", "degree", "coefficients"}
+	actKeys    = []string{"name", "function", "interval", "degree", "tolerance", "coefficients"}
 	actFuncs   = []ir.ActFunc{ir.Square, ir.Poly, ir.ReLU, ir.Sigmoid, ir.Tanh}
 	actNames   = "square, poly, relu, sigmoid or tanh"
 	defaultDeg = map[ir.ActFunc]int{ir.ReLU: 15, ir.Sigmoid: 7, ir.Tanh: 7}
@@ -222,6 +222,18 @@ func (p *parser) activation(item *yaml.Node, f *fields, l *ir.Layer) {
 		p.errorf(item, "%s: missing required key \"interval\": %s is approximated by a polynomial on an interval [a, b] that holds all its inputs, e.g. interval: [-4, 4]", l.Name, act.Func)
 	}
 
+	tol, hasTol := f.get("tolerance")
+	_, hasDeg := f.get("degree")
+	if hasTol {
+		switch {
+		case act.Func == ir.Square || act.Func == ir.Poly:
+			p.errorf(tol.key, "%s: tolerance is only for relu, sigmoid and tanh; %s is evaluated exactly", l.Name, act.Func)
+		case hasDeg:
+			p.errorf(tol.key, "%s: both degree and tolerance given; give degree to fix the interpolant, or tolerance to let the planner choose the degree", l.Name)
+		default:
+			act.Tolerance, _ = p.tolerance1(tol.val, l.Name+": tolerance")
+		}
+	}
 	if fl, ok := f.get("degree"); ok {
 		switch act.Func {
 		case ir.Square:
@@ -231,7 +243,9 @@ func (p *parser) activation(item *yaml.Node, f *fields, l *ir.Layer) {
 		default:
 			act.Degree, _ = p.integer(fl.val, l.Name+": degree", 1, 63, "an integer from 1 to 63")
 		}
-	} else if approx {
+	} else if approx && !hasTol && p.tolerance > 0 {
+		act.Tolerance = p.tolerance // the model's default; the planner chooses the degree
+	} else if approx && !hasTol {
 		act.Degree = defaultDeg[act.Func]
 	}
 
@@ -262,4 +276,19 @@ func (p *parser) coefficients(n *yaml.Node, name string) []float64 {
 		return nil
 	}
 	return c
+}
+
+// tolerance1 reads a tolerance: the largest absolute error allowed between
+// an activation and its interpolant over the declared interval.
+func (p *parser) tolerance1(n *yaml.Node, what string) (float64, bool) {
+	x, problem := number(n)
+	switch {
+	case problem != "":
+		p.errorf(n, "%s: %s (the largest absolute error allowed, e.g. 0.01)", what, problem)
+	case x < 1e-12 || x > 1e3:
+		p.errorf(n, "%s: found %g, expected a number from 1e-12 to 1000 (the largest absolute error allowed, e.g. 0.01)", what, x)
+	default:
+		return x, true
+	}
+	return 0, false
 }

@@ -22,6 +22,9 @@ type parser struct {
 	errs  ErrorList
 	files []string // weight files named, in order of first mention
 	seen  map[string]bool
+	// tolerance is the model's default tolerance for approximated
+	// activations (top-level tolerance key), 0 when absent.
+	tolerance float64
 
 	// YAML aliases let a small document name a huge tree. Every node the
 	// walk visits is charged to work; past budget the walk stops.

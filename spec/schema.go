@@ -9,7 +9,7 @@ import (
 )
 
 // topKeys are the top-level keys of schema v1.
-var topKeys = []string{"lanthorn", "model", "description", "input", "output", "precision", "insecure", "params", "layers"}
+var topKeys = []string{"lanthorn", "model", "description", "input", "output", "precision", "tolerance", "insecure", "params", "layers"}
 
 // spec checks the schema version and decodes the spec.
 func (p *parser) spec(root *yaml.Node) *ir.Graph {
@@ -82,6 +82,9 @@ func (p *parser) v1(root *yaml.Node, f *fields) *ir.Graph {
 		if v, ok := p.integer(fl.val, "precision", 4, 50, "an integer from 4 to 50 (bits)"); ok {
 			g.Precision = v
 		}
+	}
+	if fl, ok := f.get("tolerance"); ok {
+		p.tolerance, _ = p.tolerance1(fl.val, "tolerance")
 	}
 	if fl, ok := f.get("insecure"); ok {
 		g.Insecure, _ = p.boolean(fl.val, "insecure")

@@ -24,6 +24,8 @@ type programFlags struct {
 	out    *string
 	module *string
 	naive  *bool
+	// objective is what the selection minimises (objective.go).
+	objective *string
 }
 
 func addProgramFlags(fs *flag.FlagSet) programFlags {
@@ -33,6 +35,7 @@ func addProgramFlags(fs *flag.FlagSet) programFlags {
 		naive: fs.Bool("naive", false, "lower without the ciphertext-level optimisations (one rotation per diagonal, a rescale\n"+
 			"after every product, eager relinearization): the benchmark's yardstick, not for deployment;\n"+
 			"the regenerate line in the headers does not name it"),
+		objective: objectiveFlag(fs),
 	}
 }
 
@@ -56,7 +59,11 @@ func runBuild(args []string, stdout, stderr io.Writer) error {
 		fs.Usage()
 		return errUsage
 	}
-	popts := passes.Options{Naive: *pf.naive}
+	obj, err := parseObjective(*pf.objective)
+	if err != nil {
+		return err
+	}
+	popts := passes.Options{Naive: *pf.naive, Objective: obj}
 	if *dump != "" {
 		popts.DumpAfter = strings.Split(*dump, ",")
 	}

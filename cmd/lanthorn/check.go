@@ -51,7 +51,11 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 		fs.Usage()
 		return errUsage
 	}
-	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive})
+	obj, err := parseObjective(*pf.objective)
+	if err != nil {
+		return &exitError{code: 2, err: err}
+	}
+	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj})
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
@@ -65,6 +69,9 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	}
 	if *pf.naive {
 		cmd += " -naive"
+	}
+	if obj != passes.Latency {
+		cmd += " -objective " + obj.String()
 	}
 	if len(diffs) == 0 {
 		fmt.Fprintf(stdout, "%s is up to date: its %d files are what %s writes\n", *pf.out, len(files), cmd)

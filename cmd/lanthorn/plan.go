@@ -17,8 +17,9 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	profile := fs.String("profile", "", "cost model `file` from lanthorn calibrate (default: the embedded reference profile)")
 	naive := fs.Bool("naive", false, "plan the naive lowering (one rotation per diagonal, a rescale after every product,\n"+
 		"eager relinearization), the benchmark's yardstick")
+	objective := objectiveFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive]\n\n"+
+		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive] [-objective latency|keys]\n\n"+
 			"Compiles SPEC and prints its plan: the parameters and why, a row per layer\n"+
 			"(levels, rotations, key switches, products, rescales, estimated time),\n"+
 			"totals, evaluation keys and ciphertext sizes. Writes no files.\n\nFlags:\n")
@@ -40,7 +41,11 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive}, prof, passes.Latency)
+	obj, err := parseObjective(*objective)
+	if err != nil {
+		return err
+	}
+	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive, Objective: obj}, prof, obj)
 	if err != nil {
 		return err
 	}
@@ -91,5 +96,5 @@ func writePlanText(w io.Writer, p *passes.Plan) error {
 	for _, a := range p.Alternatives {
 		fmt.Fprintf(w, "considered: %s\n", a)
 	}
-	return nil
+	return p.WriteChoicesText(w)
 }
