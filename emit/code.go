@@ -119,10 +119,9 @@ func (e *emitter) params() ([]byte, error) {
 		{"Relinearize", jen.Lit(p.Relinearize)},
 	}))
 	f.Line()
-	comment(f.Comment, fmt.Sprintf("Info describes the program to the command line: its input %s (%d values in\n[%g, %g], laid out in slots [0, %d) of a period of %d slots), its output %s\n(%d values) and its parameters.",
-		p.InputName, p.InputSize, e.in.Model.Input.Min, e.in.Model.Input.Max, p.InputSize, p.Period, p.OutputName, p.OutputSize))
-	outID, _ := p.Output()
-	outV := p.Values[outID]
+	comment(f.Comment, fmt.Sprintf("Info describes the program to the command line: its input %s (%d values in\n[%g, %g], %s), its output %s\n(%d values, %s) and its parameters.",
+		p.InputName, p.InputSize, e.in.Model.Input.Min, e.in.Model.Input.Max, layoutText(p.Input), p.OutputName, p.OutputSize, layoutText(p.Output)))
+	outV := p.Values[p.Outputs()[0]]
 	f.Func().Id("Info").Params().Add(e.rtQual("ModelInfo")).Block(
 		jen.Return(e.rtQual("ModelInfo").Add(multiline([]field{
 			{"Name", jen.Lit(p.Name)},
@@ -132,7 +131,8 @@ func (e *emitter) params() ([]byte, error) {
 			{"InputMax", jen.Lit(e.in.Model.Input.Max)},
 			{"OutputName", jen.Lit(p.OutputName)},
 			{"OutputSize", jen.Lit(p.OutputSize)},
-			{"Period", jen.Lit(p.Period)},
+			{"Input", e.layoutLit(p.Input)},
+			{"Output", e.layoutLit(p.Output)},
 			{"Params", jen.Id("ParamSpec")},
 			{"Keys", jen.Id("Keys")},
 			{"Insecure", jen.Lit(pr.Insecure)},
@@ -144,6 +144,25 @@ func (e *emitter) params() ([]byte, error) {
 		}))),
 	)
 	return render(f)
+}
+
+// layoutLit writes a layout on one line: runtime.Layout{Size: 10, Chunk: 10, Copies: 1, Period: 16}.
+func (e *emitter) layoutLit(l ir.Layout) *jen.Statement {
+	f := []field{{"Size", jen.Lit(l.Size)}, {"Chunk", jen.Lit(l.Chunk)}, {"Copies", jen.Lit(l.Copies)}}
+	if l.Copies > 1 {
+		f = append(f, field{"Pitch", jen.Lit(l.Pitch)})
+	}
+	f = append(f, field{"Period", jen.Lit(l.Period)})
+	return e.rtQual("Layout").Add(inline(f))
+}
+
+// layoutText says in words where a vector sits in its ciphertexts.
+func layoutText(l ir.Layout) string {
+	if l.Count() == 1 {
+		return fmt.Sprintf("laid out in slots [0, %d) of a period of %d slots", l.Size, l.Period)
+	}
+	last := l.Size - (l.Count()-1)*l.Chunk
+	return fmt.Sprintf("split over %d ciphertexts of %d values, the last of %d, each in slots\n[0, %d) of a period of %d slots", l.Count(), l.Chunk, last, l.Chunk, l.Period)
 }
 
 // uintList writes primes in decimal, as a reader checks them against tables.
@@ -232,17 +251,31 @@ func (e *emitter) model() ([]byte, error) {
 	})
 	f.Line()
 
-	in, _ := p.Input()
-	out, _ := p.Output()
-	inV := p.Values[in]
-	comment(f.Comment, fmt.Sprintf("Evaluate runs the model on an encrypted %s vector and returns the encrypted\n%s. It needs only the evaluation keys in ev, never the secret key. The\ncode is straight-line, one statement per ciphertext operation; ev keeps the\nfirst error and every later operation does nothing, so it is checked once.\n\nThe input must be at level %d and scale %s, as Encrypt makes it.",
-		p.InputName, p.OutputName, inV.Level, inV.Scale))
+	ins, outs := p.Inputs(), p.Outputs()
+	inV := p.Values[ins[0]]
+	chunks := func(n, chunk int) string {
+		if n == 1 {
+			return "one ciphertext"
+		}
+		return fmt.Sprintf("%d ciphertexts, one per chunk of %d values", n, chunk)
+	}
+	comment(f.Comment, fmt.Sprintf("Evaluate runs the model on an encrypted %s vector (%s, as Encrypt\nmakes them from Info().Input) and returns the encrypted %s (%s).\nIt needs only the evaluation keys in ev, never the secret key. The code is\nstraight-line, one statement per ciphertext operation; ev keeps the first\nerror and every later operation does nothing, so it is checked once.\n\nThe input must be at level %d and scale %s, as Encrypt makes it.",
+		p.InputName, chunks(len(ins), p.Input.Chunk), p.OutputName, chunks(len(outs), p.Output.Chunk), inV.Level, inV.Scale))
 	f.Func().Params(jen.Id("m").Op("*").Id("Model")).Id("Evaluate").Params(
 		jen.Id("ev").Op("*").Add(e.rtQual("Evaluator")),
-		jen.Id(inV.Name).Op("*").Add(e.rtQual("Ciphertext")),
-	).Params(jen.Op("*").Add(e.rtQual("Ciphertext")), jen.Error()).BlockFunc(func(g *jen.Group) {
+		jen.Id("x").Index().Op("*").Add(e.rtQual("Ciphertext")),
+	).Params(jen.Index().Op("*").Add(e.rtQual("Ciphertext")), jen.Error()).BlockFunc(func(g *jen.Group) {
+		g.If(jen.Len(jen.Id("x")).Op("!=").Lit(len(ins))).Block(
+			jen.Return(jen.Nil(), jen.Qual("fmt", "Errorf").Call(jen.Lit(fmt.Sprintf("%%d input ciphertexts, the model takes %d", len(ins))), jen.Len(jen.Id("x")))))
+		lhs, rhs := make([]jen.Code, len(ins)), make([]jen.Code, len(ins))
+		for j, v := range ins {
+			lhs[j], rhs[j] = jen.Id(p.Values[v].Name), jen.Id("x").Index(jen.Lit(j))
+		}
+		g.List(lhs...).Op(":=").List(rhs...)
 		g.Id("pt").Op(":=").Id("m").Dot("pt")
-		g.Id("ev").Dot("Expect").Call(jen.Id(inV.Name), jen.Lit(inV.Level), scaleLit(e, inV.Scale))
+		for _, v := range ins {
+			g.Id("ev").Dot("Expect").Call(jen.Id(p.Values[v].Name), jen.Lit(inV.Level), scaleLit(e, inV.Scale))
+		}
 		layer := -1
 		for _, op := range p.Ops {
 			if op.Kind == ir.OpInput || op.Kind == ir.OpOutput {
@@ -256,7 +289,11 @@ func (e *emitter) model() ([]byte, error) {
 			e.stmt(g, op)
 		}
 		g.Line()
-		g.Return(jen.Id(p.Values[out].Name), jen.Id("ev").Dot("Err").Call())
+		g.Return(jen.Index().Op("*").Add(e.rtQual("Ciphertext")).ValuesFunc(func(g *jen.Group) {
+			for _, v := range outs {
+				g.Id(p.Values[v].Name)
+			}
+		}), jen.Id("ev").Dot("Err").Call())
 	})
 	return render(f)
 }

@@ -43,6 +43,10 @@ func (e *emitter) readme() []byte {
 		md := e.in.Plan.Markdown()
 		w("%s", md[strings.Index(md, "\n")+1:]) // the plan without its own title
 		w("\nSlot layout: period %d (vectors in slots [0, n), zero-padded, replicated over all slots).\n", p.Period)
+		if p.Input.Count() > 1 || p.Output.Count() > 1 {
+			w("Vectors wider than one period are split in chunks of %d values, one ciphertext each: the input takes %d ciphertexts (%s), the output %d.\n",
+				p.Period, p.Input.Count(), p.Input, p.Output.Count())
+		}
 	} else {
 		w("| | |\n|---|---|\n")
 		w("| ring degree | 2^%d (%d slots) |\n", pr.LogN, pr.Slots())

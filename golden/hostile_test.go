@@ -18,11 +18,12 @@ import (
 // Offsets in the header of key and ciphertext files (see
 // runtime/header.go): the test forges headers the way an attacker would.
 const (
-	hdrSize     = 84
+	hdrSize     = 88
 	hdrKind     = 10
 	hdrFPrint   = 12
 	hdrLength   = 44
 	hdrChecksum = 52
+	hdrCount    = 84
 )
 
 // program is an emitted program built into dir/bin/NAME.
@@ -168,9 +169,9 @@ func TestHostileFiles(t *testing.T) {
 			off  int
 			want string
 		}{
-			{0, "bad magic"}, {8, "file format version 0"}, {hdrKind, "this is evaluation keys, not a ciphertext"},
+			{0, "bad magic"}, {8, "file format version 3"}, {hdrKind, "this is evaluation keys, not a ciphertext"},
 			{hdrFPrint + 5, "ciphertext for another model"}, {hdrLength + 1, "header declares a payload of"},
-			{hdrChecksum, "checksum mismatch"}, {hdrSize, "checksum mismatch"},
+			{hdrChecksum, "checksum mismatch"}, {hdrCount, "file holds 0 ciphertexts, this program takes 1"}, {hdrSize, "checksum mismatch"},
 			{hdrSize + 40, "checksum mismatch"}, {n / 2, "checksum mismatch"}, {n - 1, "checksum mismatch"},
 		} {
 			f.use(fmt.Sprintf("%s flip at %d", f.kind, fl.off), file(fmt.Sprintf("%s_flip%d.ct", f.kind, fl.off), flip(f.b, fl.off)), fl.want)

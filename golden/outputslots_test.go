@@ -6,6 +6,8 @@ import (
 	"testing"
 
 	"github.com/stretchr/testify/require"
+
+	"github.com/lanthorn/lanthorn/ir"
 )
 
 // The result ciphertext must carry the model's outputs and nothing more of
@@ -22,7 +24,7 @@ func TestOutputSlotsHoldOnlyOutputs(t *testing.T) {
 			_, st, g, err := build(c)
 			require.NoError(t, err)
 			full := *st.Prog
-			full.OutputSize = full.Period
+			full.Output = ir.PackedLayout(full.Output.Count()*full.Period, full.Period, full.Period)
 			r := rand.New(rand.NewPCG(5, 5))
 			x := make([]float64, g.Input.Size)
 			for i := range x {

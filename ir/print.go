@@ -56,6 +56,7 @@ func (g *Graph) String() string {
 func (p *Program) String() string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "program %s period %d\n", p.Name, p.Period)
+	fmt.Fprintf(&b, "  input %s, output %s\n", p.Input, p.Output)
 	if p.Params.LogN != 0 {
 		fmt.Fprintf(&b, "  params logN %d logQ %v logP %v logScale %d\n", p.Params.LogN, p.Params.LogQ, p.Params.LogP, p.Params.LogScale)
 	}

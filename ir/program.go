@@ -11,10 +11,18 @@ type Program struct {
 	OutputName string
 	OutputSize int
 
-	// Period is the length D of the slot layout: every vector occupies slots
-	// [0, D) zero-padded and is replicated with period D over all slots, so a
-	// rotation of the whole slot vector is a cyclic rotation of length D.
+	// Period is the length D of the slot layout: every ciphertext holds a
+	// chunk of a vector in slots [0, D) zero-padded and is replicated with
+	// period D over all slots, so a rotation of the whole slot vector is a
+	// cyclic rotation of length D.
 	Period int
+
+	// Input and Output are the layouts of the program's input and result:
+	// the input op has one result per input ciphertext and the output op
+	// one operand per output ciphertext, chunk by chunk. Both have period
+	// Period. A vector wider than one ciphertext is split in chunks.
+	Input  Layout
+	Output Layout
 
 	Params Params
 
@@ -84,7 +92,7 @@ type OpKind string
 
 // The operations. Each mirrors one method of the runtime evaluator.
 const (
-	OpInput       OpKind = "input"      // → fresh ciphertext
+	OpInput       OpKind = "input"      // → one fresh ciphertext per input chunk
 	OpRotate      OpKind = "rotate"     // ct → ct rotated left by Steps[0]
 	OpRotHoisted  OpKind = "rothoisted" // ct → one result per Steps, one decomposition
 	OpMulPlain    OpKind = "mulplain"   // ct, Const → ct
@@ -95,7 +103,7 @@ const (
 	OpRescale     OpKind = "rescale"    // level l, scale s → level l-1, scale s/q_l
 	OpDropLevel   OpKind = "drop"       // level l → level l-Drop, same scale
 	OpPoly        OpKind = "poly"       // ct, Const polynomial → ct at the default scale
-	OpOutput      OpKind = "output"     // marks the result
+	OpOutput      OpKind = "output"     // marks the result, one operand per output chunk
 )
 
 // Op is one operation.
@@ -169,22 +177,24 @@ func (p *Program) NewValue(name string, kind ValueKind, layer int) ValueID {
 	return id
 }
 
-// Output returns the value marked by the output op.
-func (p *Program) Output() (ValueID, bool) {
+// Outputs returns the values marked by the output op, one per output
+// ciphertext in chunk order, or nil.
+func (p *Program) Outputs() []ValueID {
 	for _, op := range p.Ops {
 		if op.Kind == OpOutput {
-			return op.Args[0], true
+			return op.Args
 		}
 	}
-	return 0, false
+	return nil
 }
 
-// Input returns the value produced by the input op.
-func (p *Program) Input() (ValueID, bool) {
+// Inputs returns the values produced by the input op, one per input
+// ciphertext in chunk order, or nil.
+func (p *Program) Inputs() []ValueID {
 	for _, op := range p.Ops {
 		if op.Kind == OpInput {
-			return op.Results[0], true
+			return op.Results
 		}
 	}
-	return 0, false
+	return nil
 }

@@ -52,13 +52,22 @@ func (g *Graph) Reference(x []float64) ([]float64, error) {
 	return v, nil
 }
 
-// Simulate executes the program on cleartext slot vectors of length Period:
+// Simulate executes the program on cleartext slot vectors of length Period,
+// one per ciphertext: the input is split in chunks as Program.Input says,
 // rotations are cyclic slice rotations, plaintext products are elementwise,
-// rescales change nothing. It is the ciphertext-level view of correctness,
-// catching layout, diagonal and rotation mistakes with no encryption.
+// rescales change nothing, and the output is read from the first copy of
+// each chunk of Program.Output. It is the ciphertext-level view of
+// correctness, catching layout, diagonal and rotation mistakes with no
+// encryption.
 func (p *Program) Simulate(x []float64) ([]float64, error) {
-	if len(x) != p.InputSize {
-		return nil, fmt.Errorf("input has %d values, program takes %d", len(x), p.InputSize)
+	if len(x) != p.Input.Size {
+		return nil, fmt.Errorf("input has %d values, program takes %d", len(x), p.Input.Size)
+	}
+	if err := p.Input.Validate(0); err != nil || p.Input.Period != p.Period {
+		return nil, fmt.Errorf("simulate: input layout %v for period %d: %v", p.Input, p.Period, err)
+	}
+	if err := p.Output.Validate(0); err != nil || p.Output.Period != p.Period {
+		return nil, fmt.Errorf("simulate: output layout %v for period %d: %v", p.Output, p.Period, err)
 	}
 	vals := make([][]float64, len(p.Values))
 	for _, op := range p.Ops {
@@ -66,9 +75,19 @@ func (p *Program) Simulate(x []float64) ([]float64, error) {
 		set := func(v []float64) { vals[op.Results[0]] = v }
 		switch op.Kind {
 		case OpInput:
-			v := make([]float64, p.Period)
-			copy(v, x)
-			set(v)
+			if len(op.Results) != p.Input.Count() {
+				return nil, fmt.Errorf("simulate: %d input ciphertexts, layout %v", len(op.Results), p.Input)
+			}
+			in := p.Input
+			for j, r := range op.Results {
+				v := make([]float64, p.Period)
+				for i := 0; i < in.ChunkLen(j); i++ {
+					for k := 0; k < in.Copies; k++ {
+						v[i+k*in.Pitch] = x[j*in.Chunk+i]
+					}
+				}
+				vals[r] = v
+			}
 		case OpRotate:
 			set(rotate(arg(0), op.Steps[0]))
 		case OpRotHoisted:
@@ -101,11 +120,14 @@ func (p *Program) Simulate(x []float64) ([]float64, error) {
 			}
 			set(v)
 		case OpOutput:
-			out := arg(0)
-			if len(out) < p.OutputSize {
-				return nil, fmt.Errorf("output vector shorter than the output")
+			if len(op.Args) != p.Output.Count() {
+				return nil, fmt.Errorf("simulate: %d output ciphertexts, layout %v", len(op.Args), p.Output)
 			}
-			return append([]float64(nil), out[:p.OutputSize]...), nil
+			out := make([]float64, 0, p.Output.Size)
+			for j := range op.Args {
+				out = append(out, arg(j)[:p.Output.ChunkLen(j)]...)
+			}
+			return out, nil
 		default:
 			return nil, fmt.Errorf("simulate: unknown op %q", op.Kind)
 		}

@@ -173,8 +173,8 @@ func VerifyProgram(p *Program, stage Stage) error {
 			}
 			defined[r] = true
 		}
-		wantArgs, wantResults := arity(op)
-		if len(op.Args) != wantArgs || (wantResults >= 0 && len(op.Results) != wantResults) {
+		wantArgs, wantResults := arity(p, op)
+		if len(op.Args) != wantArgs || (wantResults >= 0 && len(op.Results) != wantResults) || (wantResults < 0 && len(op.Results) == 0) {
 			fail(op, "has %d operands and %d results, want %d and %d", len(op.Args), len(op.Results), wantArgs, wantResults)
 			continue
 		}
@@ -210,8 +210,10 @@ func VerifyProgram(p *Program, stage Stage) error {
 		case OpMulPlain, OpAddPlain, OpDropLevel:
 			d = degree[op.Args[0]]
 		case OpOutput:
-			if needDegree1 && degree[op.Args[0]] != 1 {
-				fail(op, "output must have degree 1")
+			for _, a := range op.Args {
+				if needDegree1 && degree[a] != 1 {
+					fail(op, "output must have degree 1")
+				}
 			}
 		}
 		if op.Kind == OpRotate || op.Kind == OpRotHoisted {
@@ -247,6 +249,7 @@ func VerifyProgram(p *Program, stage Stage) error {
 	if inputs != 1 || outputs != 1 {
 		errs = append(errs, fmt.Errorf("program has %d inputs and %d outputs, want one of each", inputs, outputs))
 	}
+	errs = append(errs, verifyLayouts(p)...)
 	if stage >= Placed && p.Params.LogN == 0 {
 		errs = append(errs, errors.New("no parameters chosen"))
 	}
@@ -285,8 +288,10 @@ func verifyLevels(p *Program, op *Op, fail func(*Op, string, ...any)) {
 	}
 	switch op.Kind {
 	case OpInput:
-		if res(0).Level != p.Params.MaxLevel() || !res(0).Scale.Equal(Pow2Scale(p.Params.LogScale)) {
-			fail(op, "fresh ciphertext must be at the top level and the default scale")
+		for i := range op.Results {
+			if res(i).Level != p.Params.MaxLevel() || !res(i).Scale.Equal(Pow2Scale(p.Params.LogScale)) {
+				fail(op, "fresh ciphertext must be at the top level and the default scale")
+			}
 		}
 	case OpRotate, OpRotHoisted, OpRelinearize:
 		for i := range op.Results {
@@ -371,12 +376,34 @@ func PolyDepth(d int) int {
 	return depth
 }
 
-func arity(op *Op) (args, results int) {
+// verifyLayouts checks the input and output layouts against the program:
+// valid, of the program's period, sizes as recorded.
+func verifyLayouts(p *Program) []error {
+	var errs []error
+	for _, c := range []struct {
+		what string
+		l    Layout
+		size int
+	}{{"input", p.Input, p.InputSize}, {"output", p.Output, p.OutputSize}} {
+		if err := c.l.Validate(p.Params.Slots()); err != nil {
+			errs = append(errs, fmt.Errorf("%s %w", c.what, err))
+			continue
+		}
+		if c.l.Period != p.Period || c.l.Size != c.size {
+			errs = append(errs, fmt.Errorf("%s layout %v, want %d elements in the period %d", c.what, c.l, c.size, p.Period))
+		}
+	}
+	return errs
+}
+
+// arity is the number of operands and results an op takes; -1 results
+// means one or more.
+func arity(p *Program, op *Op) (args, results int) {
 	switch op.Kind {
 	case OpInput:
-		return 0, 1
+		return 0, p.Input.Count()
 	case OpOutput:
-		return 1, 0
+		return p.Output.Count(), 0
 	case OpRotHoisted:
 		return 1, -1
 	case OpAdd, OpMul:

@@ -9,7 +9,8 @@ import (
 
 // tiny builds by hand: input → mulplain → rescale → output, at levels 1→0.
 func tiny() *Program {
-	p := &Program{Name: "t", Period: 4, InputSize: 2, OutputSize: 2, Params: Params{LogN: 10, LogQ: []int{30, 20}, LogScale: 20}}
+	p := &Program{Name: "t", Period: 4, InputSize: 2, OutputSize: 2, Params: Params{LogN: 10, LogQ: []int{30, 20}, LogScale: 20},
+		Input: PackedLayout(2, 4, 4), Output: PackedLayout(2, 4, 4)}
 	x := p.NewValue("x", Cipher, -1)
 	m := p.NewValue("m", Cipher, 0)
 	r := p.NewValue("r", Cipher, 0)
@@ -44,6 +45,10 @@ func TestVerifyCatchesBrokenRules(t *testing.T) {
 		{"missing output", func(p *Program) { p.Ops = p.Ops[:3] }, "0 outputs"},
 		{"rotation key set", func(p *Program) { p.Rotations = []int{1} }, "rotation keys [1], program uses []"},
 		{"fresh input below top", func(p *Program) { p.Values[0].Level = 0 }, "fresh ciphertext must be at the top level"},
+		{"input layout of two chunks", func(p *Program) { p.Input = PackedLayout(2, 1, 4) }, "has 0 operands and 1 results, want 0 and 2"},
+		{"output layout of another size", func(p *Program) { p.Output = PackedLayout(3, 4, 4) }, "output layout 3 in 1 × 4, period 4, want 2 elements"},
+		{"layout period", func(p *Program) { p.Input = PackedLayout(2, 4, 8) }, "input layout 2 in 1 × 4, period 8, want 2 elements in the period 4"},
+		{"invalid layout", func(p *Program) { p.Input.Chunk = 0 }, "input layout: chunk 0"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

@@ -23,6 +23,8 @@ func lower(s *State) error {
 		widest = max(widest, l.Out)
 	}
 	p.Period = nextPow2(widest)
+	p.Input = ir.PackedLayout(g.Input.Size, p.Period, p.Period)
+	p.Output = ir.PackedLayout(g.OutSize(), p.Period, p.Period)
 
 	x := p.NewValue(identifier(g.Input.Name), ir.Cipher, -1)
 	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpInput, Results: []ir.ValueID{x}, Const: -1, Layer: -1})

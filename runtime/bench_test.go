@@ -8,7 +8,7 @@ import "testing"
 
 func benchSetup(b *testing.B) (*testEnv, *Evaluator, *Ciphertext) {
 	e := getEnv(b, evalEnv)
-	ct, err := Encrypt(e.p, e.sk, randVec(1, 64, -1, 1), 64)
+	ct, err := encryptOne(e.p, e.sk, randVec(1, 64, -1, 1), 64)
 	if err != nil {
 		b.Fatal(err)
 	}

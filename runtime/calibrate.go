@@ -52,7 +52,7 @@ func MeasureOps(logN int, logQ, logP []int, levels []int, reps int) (out []OpTim
 	for i := range values {
 		values[i] = r.Float64()*2 - 1
 	}
-	top, err := Encrypt(p, sk, values, p.Slots())
+	top, err := encryptSlots(p, sk, values)
 	if err != nil {
 		return nil, err
 	}

@@ -25,11 +25,15 @@ type ModelInfo struct {
 	InputMax   float64
 	OutputName string
 	OutputSize int
-	Period     int // slot layout period: a vector sits in slots [0, n) of each period
-	Params     ParamSpec
-	Keys       KeyRequest
-	Insecure   bool
-	Precision  int // bits of absolute precision the planner sized the parameters for
+	// Input and Output say where the input's and the output's elements sit
+	// in their ciphertexts (see Layout); the output is read from the first
+	// copy of each chunk.
+	Input     Layout
+	Output    Layout
+	Params    ParamSpec
+	Keys      KeyRequest
+	Insecure  bool
+	Precision int // bits of absolute precision the planner sized the parameters for
 	// Result is the level and exact scale of Evaluate's result. When set,
 	// eval checks its result against it and decrypt refuses a ciphertext
 	// anywhere else (an encrypted input passed by mistake, or the result of
@@ -46,8 +50,9 @@ type LevelScale struct {
 
 // Model is a generated model with its weights encoded.
 type Model interface {
-	// Evaluate runs the model on an encrypted input.
-	Evaluate(ev *Evaluator, x *Ciphertext) (*Ciphertext, error)
+	// Evaluate runs the model on an encrypted input, the ciphertexts of its
+	// chunks in order, and returns those of the output.
+	Evaluate(ev *Evaluator, x []*Ciphertext) ([]*Ciphertext, error)
 	// Reference runs the same model in float64, activations as evaluated.
 	Reference(x []float64) ([]float64, error)
 	// ReferenceExact runs it with the exact activation functions.
@@ -201,6 +206,12 @@ func (c *cli) params() (*Params, error) {
 	if err != nil {
 		return nil, fmt.Errorf("parameters: %w", err)
 	}
+	if err := c.info.Input.Validate(p.Slots()); err != nil {
+		return nil, fmt.Errorf("input %w", err)
+	}
+	if err := c.info.Output.Validate(p.Slots()); err != nil {
+		return nil, fmt.Errorf("output %w", err)
+	}
 	return p, nil
 }
 
@@ -293,11 +304,11 @@ func (c *cli) encrypt(args []string) error {
 	if err != nil {
 		return err
 	}
-	ct, err := Encrypt(p, sk, x, c.info.Period)
+	cts, err := Encrypt(p, sk, x, c.info.Input)
 	if err != nil {
 		return err
 	}
-	return WriteCiphertext(*out, p, ct)
+	return WriteCiphertexts(*out, p, cts)
 }
 
 // checkRange refuses inputs outside the declared range: the model's
@@ -346,13 +357,15 @@ func (c *cli) eval(args []string) error {
 		return err
 	}
 	// The input is small and the keys are large: check the input first.
-	ct, err := ReadCiphertext(*in, p)
+	cts, err := ReadCiphertexts(*in, p, c.info.Input.Count())
 	if err != nil {
 		return serverSide(err)
 	}
 	fresh := LevelScale{Level: p.MaxLevel(), Scale: p.DefaultScale()}
-	if err := p.checkAt(ct, fresh, 1); err != nil {
-		return fmt.Errorf("%s: %w; eval takes a ciphertext made by encrypt (is this a result?)", *in, err)
+	for _, ct := range cts {
+		if err := p.checkAt(ct, fresh, 1); err != nil {
+			return fmt.Errorf("%s: %w; eval takes a ciphertext made by encrypt (is this a result?)", *in, err)
+		}
 	}
 	evk, err := ReadEvaluationKeys(filepath.Join(*keys, EvalKeysFile), p, c.info.Keys)
 	if err != nil {
@@ -365,20 +378,38 @@ func (c *cli) eval(args []string) error {
 	}
 	prep := time.Since(start)
 	start = time.Now()
-	res, err := m.Evaluate(NewEvaluator(p, evk), ct)
+	res, err := m.Evaluate(NewEvaluator(p, evk), cts)
 	if err != nil {
 		return fmt.Errorf("%s: %w", *in, err)
 	}
-	if c.info.Result != nil {
-		if err := p.checkAt(res, *c.info.Result, 1); err != nil {
-			return fmt.Errorf("%s: the model's result: %w (the program does not match its own plan)", *in, err)
-		}
+	if err := c.checkResult(p, res); err != nil {
+		return fmt.Errorf("%s: the model's result: %w (the program does not match its own plan)", *in, err)
 	}
 	took := time.Since(start)
-	if err := WriteCiphertext(*out, p, res); err != nil {
+	if err := WriteCiphertexts(*out, p, res); err != nil {
 		return err
 	}
 	fmt.Fprintf(c.stderr, "evaluated in %s (weights encoded in %s); wrote %s%s\n", took.Round(time.Millisecond), prep.Round(time.Millisecond), *out, c.insecureSuffix())
+	return nil
+}
+
+// checkResult checks that a result has the output layout's number of
+// ciphertexts, each at the level and exact scale of Result when set.
+func (c *cli) checkResult(p *Params, cts []*Ciphertext) error {
+	if n := c.info.Output.Count(); len(cts) != n {
+		return fmt.Errorf("%d ciphertexts, the output takes %d", len(cts), n)
+	}
+	if c.info.Result == nil {
+		return nil
+	}
+	for i, ct := range cts {
+		if err := p.checkCiphertext(ct); err != nil {
+			return fmt.Errorf("ciphertext %d: %w", i, err)
+		}
+		if err := p.checkAt(ct, *c.info.Result, 1); err != nil {
+			return err
+		}
+	}
 	return nil
 }
 
@@ -416,20 +447,18 @@ func (c *cli) decrypt(args []string) error {
 	if err != nil {
 		return err
 	}
-	ct, err := ReadCiphertext(*in, p)
+	cts, err := ReadCiphertexts(*in, p, c.info.Output.Count())
 	if err != nil {
 		return err
 	}
-	if c.info.Result != nil {
-		if err := p.checkAt(ct, *c.info.Result, 1); err != nil {
-			return fmt.Errorf("%s: %w; decrypt takes a result of eval (is this an encrypted input?)", *in, err)
-		}
+	if err := c.checkResult(p, cts); err != nil {
+		return fmt.Errorf("%s: %w; decrypt takes a result of eval (is this an encrypted input?)", *in, err)
 	}
 	sk, err := ReadSecretKey(filepath.Join(*keys, SecretKeyFile), p)
 	if err != nil {
 		return err
 	}
-	y, err := Decrypt(p, sk, ct, c.info.OutputSize)
+	y, err := Decrypt(p, sk, cts, c.info.Output)
 	if err != nil {
 		return fmt.Errorf("%s: %w", *in, err)
 	}
@@ -496,17 +525,20 @@ func (c *cli) selftest(args []string) error {
 		for j := range x {
 			x[j] = c.info.InputMin + r.Float64()*(c.info.InputMax-c.info.InputMin)
 		}
-		ct, err := Encrypt(p, sk, x, c.info.Period)
+		cts, err := Encrypt(p, sk, x, c.info.Input)
 		if err != nil {
 			return err
 		}
 		t0 := time.Now()
-		res, err := m.Evaluate(ev, ct)
+		res, err := m.Evaluate(ev, cts)
 		if err != nil {
 			return fmt.Errorf("input %d: %w", i+1, err)
 		}
 		times = append(times, time.Since(t0))
-		y, err := Decrypt(p, sk, res, c.info.OutputSize)
+		if err := c.checkResult(p, res); err != nil {
+			return fmt.Errorf("input %d: the model's result: %w", i+1, err)
+		}
+		y, err := Decrypt(p, sk, res, c.info.Output)
 		if err != nil {
 			return err
 		}

@@ -2,6 +2,7 @@ package runtime
 
 import (
 	"bytes"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -14,12 +15,14 @@ import (
 )
 
 // toyModel multiplies its input slot-wise by a weight vector and rescales:
-// one level, result at the default scale. Small parameters (ring degree
-// 2^10, two levels) keep the command-line tests fast.
+// one level, result at the default scale. Its two values sit in two
+// ciphertexts (chunks of one value), so the command line handles files of
+// several ciphertexts. Small parameters (ring degree 2^10, two levels) keep
+// the command-line tests fast.
 type toyModel struct {
 	p *Params
 	w []float64
-	x *Plaintext
+	x []*Plaintext // one per chunk
 }
 
 // toyWeights are the model's weights, one per slot of a period of 2.
@@ -44,7 +47,7 @@ func toySpec(t *testing.T, model string) ParamSpec {
 }
 
 func loadToy(p *Params) (Model, error) {
-	blob, err := BuildWeights([]string{"w"}, [][]float64{toyWeights})
+	blob, err := BuildWeights([]string{"w0", "w1"}, [][]float64{{toyWeights[0], 0}, {toyWeights[1], 0}})
 	if err != nil {
 		return nil, err
 	}
@@ -53,14 +56,20 @@ func loadToy(p *Params) (Model, error) {
 		return nil, err
 	}
 	enc := NewEncoder(p, w)
-	pt := enc.Plaintext("w", 1, Scale{Num: []int{1}}, 2)
-	return &toyModel{p: p, w: toyWeights, x: pt}, enc.Err()
+	pts := []*Plaintext{enc.Plaintext("w0", 1, Scale{Num: []int{1}}, 2), enc.Plaintext("w1", 1, Scale{Num: []int{1}}, 2)}
+	return &toyModel{p: p, w: toyWeights, x: pts}, enc.Err()
 }
 
-// Evaluate multiplies by the weights and rescales.
-func (m *toyModel) Evaluate(ev *Evaluator, x *Ciphertext) (*Ciphertext, error) {
-	ev.Expect(x, 1, Scale{Pow2: 30})
-	y := ev.Rescale(ev.MulPlain(x, m.x))
+// Evaluate multiplies each chunk by its weights and rescales.
+func (m *toyModel) Evaluate(ev *Evaluator, x []*Ciphertext) ([]*Ciphertext, error) {
+	if len(x) != len(m.x) {
+		return nil, fmt.Errorf("%d ciphertexts, want %d", len(x), len(m.x))
+	}
+	y := make([]*Ciphertext, len(x))
+	for j := range x {
+		ev.Expect(x[j], 1, Scale{Pow2: 30})
+		y[j] = ev.Rescale(ev.MulPlain(x[j], m.x[j]))
+	}
 	return y, ev.Err()
 }
 
@@ -75,7 +84,9 @@ func (m *toyModel) ReferenceExact(x []float64) ([]float64, error) { return m.Ref
 func toyInfo(t *testing.T, model string) ModelInfo {
 	return ModelInfo{
 		Name: "toy", InputName: "x", InputSize: 2, InputMin: -1, InputMax: 1,
-		OutputName: "y", OutputSize: 2, Period: 2,
+		OutputName: "y", OutputSize: 2,
+		Input:  Layout{Size: 2, Chunk: 1, Copies: 1, Period: 2},
+		Output: Layout{Size: 2, Chunk: 1, Copies: 1, Period: 2},
 		Params: toySpec(t, model), Precision: 12,
 		Result: &LevelScale{Level: 0, Scale: Scale{Pow2: 30}},
 	}
@@ -352,7 +363,7 @@ func TestReadCSVRow(t *testing.T) {
 // checkAt names each of level, scale and degree that differs.
 func TestCheckAt(t *testing.T) {
 	e := ctParams.get(t)
-	ct, err := Encrypt(e.p, e.sk, []float64{0.5}, 1)
+	ct, err := encryptOne(e.p, e.sk, []float64{0.5}, 1)
 	require.NoError(t, err)
 	ev := NewEvaluator(e.p, nil)
 	sq := ev.Mul(ct, ct)

@@ -3,41 +3,17 @@ package runtime
 import (
 	"errors"
 	"fmt"
-	"math"
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 	"github.com/tuneinsight/lattigo/v5/he/hefloat"
 )
 
-// replicate places values at slots [0, len(values)), zero-pads them to
-// period and repeats that block over all slots.
-func replicate(slots int, values []float64, period int) ([]float64, error) {
-	switch {
-	case period < 1 || period > slots:
-		return nil, fmt.Errorf("period %d, want 1..%d", period, slots)
-	case slots%period != 0:
-		return nil, fmt.Errorf("period %d does not divide the %d slots", period, slots)
-	case len(values) > period:
-		return nil, fmt.Errorf("%d values do not fit a period of %d", len(values), period)
-	}
-	out := make([]float64, slots)
-	for i, v := range values {
-		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, fmt.Errorf("value %d is %v", i, v)
-		}
-		for j := i; j < slots; j += period {
-			out[j] = v
-		}
-	}
-	return out, nil
-}
-
-// Encrypt encrypts values under sk: values sit at slots [0, len(values)),
-// zero-padded to period and replicated with that period over all slots
-// (period must divide Slots), so rotations within a block of period slots
-// wrap around as the program expects. The ciphertext is at the top level
-// and at scale exactly 2^LogScale.
-func Encrypt(p *Params, sk *SecretKey, values []float64, period int) (ct *Ciphertext, err error) {
+// Encrypt encrypts values under sk as layout l says: one ciphertext per
+// chunk of l.Chunk values, each value at its slot, in every copy and every
+// period (l.Period must divide Slots), so rotations within a block of
+// l.Period slots wrap around as the program expects. The ciphertexts are at
+// the top level and at scale exactly 2^LogScale.
+func Encrypt(p *Params, sk *SecretKey, values []float64, l Layout) (cts []*Ciphertext, err error) {
 	defer recoverTo(&err, "encrypt")
 	if !p.ok() {
 		return nil, errors.New("encrypt: nil parameters (or not made by NewParams)")
@@ -45,27 +21,41 @@ func Encrypt(p *Params, sk *SecretKey, values []float64, period int) (ct *Cipher
 	if err := p.checkSecretKey(sk); err != nil {
 		return nil, fmt.Errorf("encrypt: %w", err)
 	}
-	slots, err := replicate(p.Slots(), values, period)
+	slots, err := l.pack(p.Slots(), values)
 	if err != nil {
 		return nil, fmt.Errorf("encrypt: %w", err)
 	}
+	cts = make([]*Ciphertext, len(slots))
+	for j, s := range slots {
+		if cts[j], err = encryptSlots(p, sk, s); err != nil {
+			return nil, fmt.Errorf("encrypt: %s%w", which(j, len(slots)), err)
+		}
+	}
+	return cts, nil
+}
+
+// encryptSlots encrypts a full slot vector at the top level and the default
+// scale.
+func encryptSlots(p *Params, sk *SecretKey, slots []float64) (*Ciphertext, error) {
 	pt := hefloat.NewPlaintext(p.hp, p.MaxLevel())
+	var err error
 	if pt.Scale, err = p.rlweScale(p.DefaultScale()); err != nil {
-		return nil, fmt.Errorf("encrypt: %w", err)
+		return nil, err
 	}
 	if err := hefloat.NewEncoder(p.hp).Encode(slots, pt); err != nil {
-		return nil, fmt.Errorf("encrypt: encode: %w", err)
+		return nil, fmt.Errorf("encode: %w", err)
 	}
 	c, err := rlwe.NewEncryptor(p.hp, sk.sk).EncryptNew(pt)
 	if err != nil {
-		return nil, fmt.Errorf("encrypt: %w", err)
+		return nil, err
 	}
 	return p.wrap(c), nil
 }
 
-// Decrypt decrypts ct with sk and returns the real parts of its first n
-// slots.
-func Decrypt(p *Params, sk *SecretKey, ct *Ciphertext, n int) (values []float64, err error) {
+// Decrypt decrypts the ciphertexts of a vector laid out as l says and
+// returns the real parts of its l.Size elements: element i from ciphertext
+// i / l.Chunk, slot i % l.Chunk (the first copy).
+func Decrypt(p *Params, sk *SecretKey, cts []*Ciphertext, l Layout) (values []float64, err error) {
 	defer recoverTo(&err, "decrypt")
 	if !p.ok() {
 		return nil, errors.New("decrypt: nil parameters (or not made by NewParams)")
@@ -73,16 +63,40 @@ func Decrypt(p *Params, sk *SecretKey, ct *Ciphertext, n int) (values []float64,
 	if err := p.checkSecretKey(sk); err != nil {
 		return nil, fmt.Errorf("decrypt: %w", err)
 	}
-	if err := p.checkCiphertext(ct); err != nil {
+	if err := l.Validate(p.Slots()); err != nil {
 		return nil, fmt.Errorf("decrypt: %w", err)
 	}
-	if n < 0 || n > p.Slots() {
-		return nil, fmt.Errorf("decrypt: %d values asked, want 0..%d", n, p.Slots())
+	if len(cts) != l.Count() {
+		return nil, fmt.Errorf("decrypt: %d ciphertexts, the layout has %d", len(cts), l.Count())
 	}
+	slots := make([][]float64, len(cts))
+	for j, ct := range cts {
+		if err := p.checkCiphertext(ct); err != nil {
+			return nil, fmt.Errorf("decrypt: %s%w", which(j, len(cts)), err)
+		}
+		if slots[j], err = decryptSlots(p, sk, ct); err != nil {
+			return nil, fmt.Errorf("decrypt: %s%w", which(j, len(cts)), err)
+		}
+	}
+	return l.unpack(slots), nil
+}
+
+// decryptSlots decrypts a checked ciphertext and returns the real parts of
+// all its slots.
+func decryptSlots(p *Params, sk *SecretKey, ct *Ciphertext) ([]float64, error) {
 	pt := rlwe.NewDecryptor(p.hp, sk.sk).DecryptNew(ct.ct)
 	out := make([]float64, p.Slots())
 	if err := hefloat.NewEncoder(p.hp).Decode(pt, out); err != nil {
-		return nil, fmt.Errorf("decrypt: decode: %w", err)
+		return nil, fmt.Errorf("decode: %w", err)
 	}
-	return out[:n:n], nil
+	return out, nil
+}
+
+// which names ciphertext j of n in a message, "ciphertext 2: ", or nothing
+// when there is only one.
+func which(j, n int) string {
+	if n == 1 {
+		return ""
+	}
+	return fmt.Sprintf("ciphertext %d: ", j)
 }

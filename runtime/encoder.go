@@ -138,10 +138,11 @@ func (e *Encoder) plaintext(name string, level int, scale Scale, period int) (pt
 	if level < 0 || level > e.p.MaxLevel() {
 		return nil, fmt.Errorf("level %d, want 0..%d", level, e.p.MaxLevel())
 	}
-	slots, err := replicate(e.p.Slots(), v, period)
+	packed, err := Layout{Size: period, Chunk: period, Copies: 1, Period: period}.pack(e.p.Slots(), v)
 	if err != nil {
 		return nil, err
 	}
+	slots := packed[0]
 	s, err := e.p.rlweScale(scale)
 	if err != nil {
 		return nil, err

@@ -50,7 +50,7 @@ func TestEncoderErrors(t *testing.T) {
 	}{
 		{"missing", func(enc *Encoder) { enc.Plaintext("nope", 1, Scale{Pow2: 40}, 4) }, `"nope": not in the weights blob`},
 		{"period", func(enc *Encoder) { enc.Plaintext("w4", 1, Scale{Pow2: 40}, 8) }, "4 values, want the period 8"},
-		{"period divides", func(enc *Encoder) { enc.Plaintext("cheb", 1, Scale{Pow2: 40}, 3) }, "does not divide"},
+		{"period a power of two", func(enc *Encoder) { enc.Plaintext("cheb", 1, Scale{Pow2: 40}, 3) }, "power of two"},
 		{"level", func(enc *Encoder) { enc.Plaintext("w4", 9, Scale{Pow2: 40}, 4) }, "level 9, want 0..6"},
 		{"scale", func(enc *Encoder) { enc.Plaintext("w4", 1, Scale{Num: []int{8}}, 4) }, "no prime q8"},
 		{"overflow", func(enc *Encoder) { enc.Plaintext("big", 0, Scale{Pow2: 40}, 2) }, "needs"},

@@ -77,15 +77,22 @@ func requireClose(t *testing.T, want, have []float64, tol float64, msg string) {
 // encrypt encrypts values with period len(values) (or period, if larger).
 func (e *testEnv) encrypt(t *testing.T, values []float64, period int) *Ciphertext {
 	t.Helper()
-	ct, err := Encrypt(e.p, e.sk, values, period)
+	cts, err := Encrypt(e.p, e.sk, values, vecLayout(len(values), period))
 	require.NoError(t, err)
-	return ct
+	require.Len(t, cts, 1)
+	return cts[0]
+}
+
+// vecLayout is the layout of n values in one ciphertext, in slots [0, n) of
+// each period.
+func vecLayout(n, period int) Layout {
+	return Layout{Size: n, Chunk: n, Copies: 1, Period: period}
 }
 
 func (e *testEnv) decrypt(t *testing.T, ct *Ciphertext, n int) []float64 {
 	t.Helper()
 	require.NotNil(t, ct)
-	v, err := Decrypt(e.p, e.sk, ct, n)
+	v, err := Decrypt(e.p, e.sk, []*Ciphertext{ct}, vecLayout(n, e.p.Slots()))
 	require.NoError(t, err)
 	return v
 }
@@ -94,3 +101,18 @@ func (e *testEnv) decrypt(t *testing.T, ct *Ciphertext, n int) []float64 {
 // LogN 12: fresh encryption noise is about 2^-30; a few ops and rescales
 // keep it well below 2^-15 (common practice for these sizes).
 var tol = math.Ldexp(1, -15)
+
+// encryptOne encrypts values into one ciphertext, in slots [0, n) of each
+// period.
+func encryptOne(p *Params, sk *SecretKey, values []float64, period int) (*Ciphertext, error) {
+	cts, err := Encrypt(p, sk, values, vecLayout(len(values), period))
+	if err != nil {
+		return nil, err
+	}
+	return cts[0], nil
+}
+
+// decryptOne decrypts the first n slots of one ciphertext.
+func decryptOne(p *Params, sk *SecretKey, ct *Ciphertext, n int) ([]float64, error) {
+	return Decrypt(p, sk, []*Ciphertext{ct}, vecLayout(n, p.Slots()))
+}

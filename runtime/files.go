@@ -18,7 +18,7 @@ func MarshalSecretKey(w io.Writer, p *Params, sk *SecretKey) (err error) {
 	if err := p.checkSecretKey(sk); err != nil {
 		return err
 	}
-	return writeObject(w, p, kindSecretKey, int64(sk.sk.BinarySize()), func(w io.Writer) error {
+	return writeObject(w, p, kindSecretKey, 1, int64(sk.sk.BinarySize()), func(w io.Writer) error {
 		_, err := sk.sk.WriteTo(w)
 		return err
 	})
@@ -31,7 +31,7 @@ func UnmarshalSecretKey(r io.Reader, p *Params) (sk *SecretKey, err error) {
 		return nil, errors.New("nil parameters (or not made by NewParams)")
 	}
 	size := secretKeySize(p)
-	payload, err := readObject(r, p, kindSecretKey, size, func(n int64) error {
+	payload, err := readObject(r, p, kindSecretKey, 1, size, func(n int64) error {
 		if n != size {
 			return fmt.Errorf("header declares a payload of %d bytes; a secret key takes %d with these parameters", n, size)
 		}
@@ -55,7 +55,7 @@ func MarshalEvaluationKeys(w io.Writer, p *Params, k *EvaluationKeys) (err error
 	if err := k.check(p, KeyRequest{}); err != nil {
 		return err
 	}
-	return writeObject(w, p, kindEvalKeys, int64(k.Size()), k.writePayload)
+	return writeObject(w, p, kindEvalKeys, 1, int64(k.Size()), k.writePayload)
 }
 
 // UnmarshalEvaluationKeys reads evaluation keys written by
@@ -68,7 +68,7 @@ func UnmarshalEvaluationKeys(r io.Reader, p *Params, req KeyRequest) (k *Evaluat
 	if !p.ok() {
 		return nil, errors.New("nil parameters (or not made by NewParams)")
 	}
-	payload, err := readObject(r, p, kindEvalKeys, maxEvalKeysSize(p, req), nil)
+	payload, err := readObject(r, p, kindEvalKeys, 1, maxEvalKeysSize(p, req), nil)
 	if err != nil {
 		return nil, err
 	}
@@ -81,41 +81,93 @@ func UnmarshalEvaluationKeys(r io.Reader, p *Params, req KeyRequest) (k *Evaluat
 	return k, nil
 }
 
-// MarshalCiphertext writes ct, with its header, to w.
-func MarshalCiphertext(w io.Writer, p *Params, ct *Ciphertext) (err error) {
-	defer recoverTo(&err, "write ciphertext")
+// MarshalCiphertexts writes the ciphertexts of one vector, with their
+// header, to w. They must share one degree and level, as the results of one
+// program do.
+func MarshalCiphertexts(w io.Writer, p *Params, cts []*Ciphertext) (err error) {
+	defer recoverTo(&err, "write ciphertexts")
 	if !p.ok() {
 		return errors.New("nil parameters (or not made by NewParams)")
 	}
-	if err := p.checkCiphertext(ct); err != nil {
-		return err
+	if len(cts) == 0 || len(cts) > maxCiphertexts {
+		return fmt.Errorf("%d ciphertexts, want 1..%d", len(cts), maxCiphertexts)
 	}
-	size, err := encodeCiphertextSize(p, ct.ct)
-	if err != nil {
-		return err
+	var each int64
+	for i, ct := range cts {
+		if err := p.checkCiphertext(ct); err != nil {
+			return fmt.Errorf("ciphertext %d: %w", i, err)
+		}
+		size, err := encodeCiphertextSize(p, ct.ct)
+		if err != nil {
+			return fmt.Errorf("ciphertext %d: %w", i, err)
+		}
+		if i > 0 && (ct.Degree() != cts[0].Degree() || ct.Level() != cts[0].Level()) {
+			return fmt.Errorf("ciphertext %d at degree %d level %d, ciphertext 0 at degree %d level %d: one file holds ciphertexts of one shape",
+				i, ct.Degree(), ct.Level(), cts[0].Degree(), cts[0].Level())
+		}
+		each = size
 	}
-	return writeObject(w, p, kindCiphertext, size, func(w io.Writer) error {
-		_, err := ct.ct.WriteTo(w)
-		return err
+	return writeObject(w, p, kindCiphertext, len(cts), each*int64(len(cts)), func(w io.Writer) error {
+		for _, ct := range cts {
+			if _, err := ct.ct.WriteTo(w); err != nil {
+				return err
+			}
+		}
+		return nil
 	})
 }
 
-// UnmarshalCiphertext reads a ciphertext written by MarshalCiphertext for p.
-func UnmarshalCiphertext(r io.Reader, p *Params) (ct *Ciphertext, err error) {
-	defer recoverTo(&err, "read ciphertext")
+// MarshalCiphertext writes one ciphertext, with its header, to w.
+func MarshalCiphertext(w io.Writer, p *Params, ct *Ciphertext) error {
+	return MarshalCiphertexts(w, p, []*Ciphertext{ct})
+}
+
+// UnmarshalCiphertexts reads the n ciphertexts of one vector written by
+// MarshalCiphertexts for p; n comes from the program's layout
+// (Layout.Count) and is checked against the header before anything is
+// allocated.
+func UnmarshalCiphertexts(r io.Reader, p *Params, n int) (cts []*Ciphertext, err error) {
+	defer recoverTo(&err, "read ciphertexts")
 	if !p.ok() {
 		return nil, errors.New("nil parameters (or not made by NewParams)")
 	}
-	payload, err := readObject(r, p, kindCiphertext, maxCiphertextSize(p), func(n int64) error {
-		if _, _, ok := ciphertextShape(p, n); !ok {
-			return fmt.Errorf("header declares a payload of %d bytes, the size of no ciphertext for these parameters", n)
+	if n < 1 || n > maxCiphertexts {
+		return nil, fmt.Errorf("%d ciphertexts asked, want 1..%d", n, maxCiphertexts)
+	}
+	payload, err := readObject(r, p, kindCiphertext, n, int64(n)*maxCiphertextSize(p), func(size int64) error {
+		if size%int64(n) == 0 {
+			if _, _, ok := ciphertextShape(p, size/int64(n)); ok {
+				return nil
+			}
 		}
-		return nil
+		if n == 1 {
+			return fmt.Errorf("header declares a payload of %d bytes, the size of no ciphertext for these parameters", size)
+		}
+		return fmt.Errorf("header declares a payload of %d bytes, the size of no %d ciphertexts of one shape for these parameters", size, n)
 	})
 	if err != nil {
 		return nil, err
 	}
-	return decodeCiphertext(p, payload)
+	each := len(payload) / n
+	cts = make([]*Ciphertext, n)
+	for i := range cts {
+		if cts[i], err = decodeCiphertext(p, payload[i*each:(i+1)*each]); err != nil {
+			if n == 1 {
+				return nil, err
+			}
+			return nil, fmt.Errorf("ciphertext %d: %w", i, err)
+		}
+	}
+	return cts, nil
+}
+
+// UnmarshalCiphertext reads a file of one ciphertext.
+func UnmarshalCiphertext(r io.Reader, p *Params) (*Ciphertext, error) {
+	cts, err := UnmarshalCiphertexts(r, p, 1)
+	if err != nil {
+		return nil, err
+	}
+	return cts[0], nil
 }
 
 // WriteSecretKey writes sk to path atomically, readable by its owner only
@@ -151,19 +203,35 @@ func ReadEvaluationKeys(path string, p *Params, req KeyRequest) (*EvaluationKeys
 	return k, err
 }
 
-// WriteCiphertext writes ct to path atomically (mode 0644).
-func WriteCiphertext(path string, p *Params, ct *Ciphertext) error {
-	return writeFile(path, 0o644, func(w io.Writer) error { return MarshalCiphertext(w, p, ct) })
+// WriteCiphertexts writes the ciphertexts of one vector to path
+// atomically (mode 0644).
+func WriteCiphertexts(path string, p *Params, cts []*Ciphertext) error {
+	return writeFile(path, 0o644, func(w io.Writer) error { return MarshalCiphertexts(w, p, cts) })
 }
 
-// ReadCiphertext reads a ciphertext file written by WriteCiphertext.
-func ReadCiphertext(path string, p *Params) (*Ciphertext, error) {
-	var ct *Ciphertext
+// ReadCiphertexts reads a file written by WriteCiphertexts that must hold
+// n ciphertexts.
+func ReadCiphertexts(path string, p *Params, n int) ([]*Ciphertext, error) {
+	var cts []*Ciphertext
 	err := readFile(path, func(r io.Reader) (err error) {
-		ct, err = UnmarshalCiphertext(r, p)
+		cts, err = UnmarshalCiphertexts(r, p, n)
 		return err
 	})
-	return ct, err
+	return cts, err
+}
+
+// WriteCiphertext writes one ciphertext to path atomically (mode 0644).
+func WriteCiphertext(path string, p *Params, ct *Ciphertext) error {
+	return WriteCiphertexts(path, p, []*Ciphertext{ct})
+}
+
+// ReadCiphertext reads a file of one ciphertext.
+func ReadCiphertext(path string, p *Params) (*Ciphertext, error) {
+	cts, err := ReadCiphertexts(path, p, 1)
+	if err != nil {
+		return nil, err
+	}
+	return cts[0], nil
 }
 
 // writeFile writes through a temporary file in the same directory, synced

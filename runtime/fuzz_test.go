@@ -2,6 +2,7 @@ package runtime
 
 import (
 	"bytes"
+	"encoding/binary"
 	"crypto/sha256"
 	"encoding/hex"
 	"flag"
@@ -117,33 +118,40 @@ func consumed(data []byte, r *bytes.Reader) []byte {
 	return data[:len(data)-r.Len()]
 }
 
-// FuzzUnmarshalCiphertext reads a ciphertext file. Whatever it accepts has
-// a shape of these parameters, decrypts without error, and is written back
-// byte for byte as it was read.
+// FuzzUnmarshalCiphertext reads a ciphertext file as a vector of one and of
+// two ciphertexts. Whatever it accepts has a shape of these parameters,
+// decrypts without error, and is written back byte for byte as it was read.
 func FuzzUnmarshalCiphertext(f *testing.F) {
 	e := ctParams.get(f)
 	f.Fuzz(func(t *testing.T, data []byte, resealed bool) {
 		data = fuzzFile(data, resealed)
-		r := bytes.NewReader(data)
-		var ct *Ciphertext
-		var err error
-		alloc := allocated(func() { ct, err = UnmarshalCiphertext(r, e.p) })
-		checkReadErr(t, err, alloc)
-		if err != nil {
-			return
-		}
-		if err := e.p.checkCiphertext(ct); err != nil {
-			t.Fatalf("accepted a malformed ciphertext: %v", err)
-		}
-		if _, err := Decrypt(e.p, e.sk, ct, e.p.Slots()); err != nil {
-			t.Fatalf("accepted a ciphertext that does not decrypt: %v", err)
-		}
-		var out bytes.Buffer
-		if err := MarshalCiphertext(&out, e.p, ct); err != nil {
-			t.Fatalf("accepted a ciphertext that cannot be written back: %v", err)
-		}
-		if !bytes.Equal(out.Bytes(), consumed(data, r)) {
-			t.Fatal("the ciphertext read is not the one written back (a non-canonical encoding was accepted)")
+		for n := 1; n <= 2; n++ {
+			r := bytes.NewReader(data)
+			var cts []*Ciphertext
+			var err error
+			alloc := allocated(func() { cts, err = UnmarshalCiphertexts(r, e.p, n) })
+			checkReadErr(t, err, alloc)
+			if err != nil {
+				continue
+			}
+			if len(cts) != n {
+				t.Fatalf("asked for %d ciphertexts, got %d", n, len(cts))
+			}
+			for _, ct := range cts {
+				if err := e.p.checkCiphertext(ct); err != nil {
+					t.Fatalf("accepted a malformed ciphertext: %v", err)
+				}
+				if _, err := decryptOne(e.p, e.sk, ct, e.p.Slots()); err != nil {
+					t.Fatalf("accepted a ciphertext that does not decrypt: %v", err)
+				}
+			}
+			var out bytes.Buffer
+			if err := MarshalCiphertexts(&out, e.p, cts); err != nil {
+				t.Fatalf("accepted ciphertexts that cannot be written back: %v", err)
+			}
+			if !bytes.Equal(out.Bytes(), consumed(data, r)) {
+				t.Fatal("the ciphertexts read are not the ones written back (a non-canonical encoding was accepted)")
+			}
 		}
 	})
 }
@@ -351,6 +359,7 @@ func damaged(file []byte) map[string][]any {
 		"flip_kind":         {flip(hdr, 10), false},
 		"flip_fingerprint":  {flip(hdr, 20), false},
 		"flip_length":       {flip(hdr, 50), false},
+		"flip_count":        {flip(hdr, 84), false},
 		"flip_checksum":     {flip(file[:headerSize+16], 60), false},
 		"flip_payload_0":    {flip(file, headerSize), true},
 		"huge_length":       {append(append(bytes.Clone(file[:44]), 0, 0, 0, 0, 0, 0, 0, 0x40), file[52:headerSize]...), false},
@@ -359,7 +368,7 @@ func damaged(file []byte) map[string][]any {
 
 func ciphertextSeeds(t *testing.T) map[string][]any {
 	e := ctParams.get(t)
-	ct, err := Encrypt(e.p, e.sk, []float64{0.5, -0.25, 1}, 4)
+	ct, err := encryptOne(e.p, e.sk, []float64{0.5, -0.25, 1}, 4)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -376,6 +385,13 @@ func ciphertextSeeds(t *testing.T) map[string][]any {
 	seeds["valid_level0"] = []any{file, false}
 	seeds["valid_level1"] = []any{top, false}
 	seeds["valid_degree2"] = []any{deg2, false}
+	two := marshal(t, func(b *bytes.Buffer) error { return MarshalCiphertexts(b, e.p, []*Ciphertext{low, low}) })
+	seeds["valid_two"] = []any{two, false}
+	// Two ciphertexts under a count of one: read as one, the length is that
+	// of no single ciphertext.
+	one := bytes.Clone(two)
+	binary.LittleEndian.PutUint32(one[84:88], 1)
+	seeds["two_counted_one"] = []any{one, false}
 	// The metadata starts right after the flag byte: "{"PlaintextMetaData":...".
 	seeds["flip_metadata"] = []any{flip(file, headerSize+30), true}
 	// Regression seeds: a JSON key in another case (lattigo's decoder

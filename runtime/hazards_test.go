@@ -22,7 +22,7 @@ import (
 // below lattigo's 2^-128 precision, and so is the value.
 func TestHazardFirstBytes(t *testing.T) {
 	e := ctParams.get(t)
-	ct, err := Encrypt(e.p, e.sk, []float64{0.5, -1}, 2)
+	ct, err := encryptOne(e.p, e.sk, []float64{0.5, -1}, 2)
 	require.NoError(t, err)
 	var buf bytes.Buffer
 	require.NoError(t, MarshalCiphertext(&buf, e.p, ct))
@@ -49,7 +49,7 @@ func TestHazardFirstBytes(t *testing.T) {
 			}
 			accepted++
 			if e.p.checkAt(got, fresh, 1) == nil {
-				y, err := Decrypt(e.p, e.sk, got, 2)
+				y, err := decryptOne(e.p, e.sk, got, 2)
 				require.NoError(t, err)
 				requireClose(t, []float64{0.5, -1}, y, tol, fmt.Sprintf("resealed offset %d ^ %#x, same scale", off, bit))
 			}
@@ -66,7 +66,7 @@ func TestHazardFirstBytes(t *testing.T) {
 func TestHazardOtherRingDegree(t *testing.T) {
 	small := ctParams.get(t)  // ring degree 2^10
 	big := getEnv(t, fileEnv) // ring degree 2^12
-	ct, err := Encrypt(small.p, small.sk, []float64{1}, 1)
+	ct, err := encryptOne(small.p, small.sk, []float64{1}, 1)
 	require.NoError(t, err)
 	var buf bytes.Buffer
 	require.NoError(t, MarshalCiphertext(&buf, small.p, ct))
@@ -77,11 +77,11 @@ func TestHazardOtherRingDegree(t *testing.T) {
 	copy(forged[12:44], big.p.fp[:])
 	_, err = UnmarshalCiphertext(bytes.NewReader(forged), big.p)
 	require.ErrorContains(t, err, "the size of no ciphertext for these parameters")
-	_, err = Decrypt(big.p, big.sk, ct, 1)
+	_, err = decryptOne(big.p, big.sk, ct, 1)
 	require.ErrorContains(t, err, "decrypt: ciphertext for another model")
 	// The same object relabelled in memory: the ring degree is checked too.
 	relabelled := &Ciphertext{ct: ct.ct, fp: big.p.fp}
-	_, err = Decrypt(big.p, big.sk, relabelled, 1)
+	_, err = decryptOne(big.p, big.sk, relabelled, 1)
 	require.ErrorContains(t, err, "ciphertext polynomial of degree 1024")
 }
 
@@ -132,7 +132,7 @@ func putU64(b []byte, v uint64) {
 func TestForgedUnreducedCoefficient(t *testing.T) {
 	e := keyParams.get(t)
 	q0 := e.p.spec.Q[0]
-	ct, err := Encrypt(e.p, e.sk, []float64{1}, 1)
+	ct, err := encryptOne(e.p, e.sk, []float64{1}, 1)
 	require.NoError(t, err)
 	var buf bytes.Buffer
 	require.NoError(t, MarshalCiphertext(&buf, e.p, ct))

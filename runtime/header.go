@@ -15,21 +15,26 @@ import (
 //
 //	offset size
 //	0      8    magic "LNTHOBJ\x00"
-//	8      2    format version (1)
-//	10     2    object kind: 1 secret key, 2 evaluation keys, 3 ciphertext
+//	8      2    format version (2)
+//	10     2    object kind: 1 secret key, 2 evaluation keys, 3 ciphertexts
 //	12     32   parameter fingerprint (SHA-256, see Params.Fingerprint)
 //	44     8    payload length in bytes
 //	52     32   SHA-256 of the payload
-//	84     -    payload
+//	84     4    number of objects in the payload (1 for keys; for
+//	            ciphertexts, the ciphertexts of one vector)
+//	88     -    payload
 //
 // The payload is lattigo's own encoding (WriteTo) of the object; for
 // evaluation keys it is a short list of the rotation steps followed by
-// lattigo's encoding of each key (see evalkeys_codec.go). Readers check the
-// header, the length against what the parameters allow and the checksum
-// before lattigo sees a byte of the payload.
+// lattigo's encoding of each key (see evalkeys_codec.go); for ciphertexts
+// it is lattigo's encoding of each ciphertext in turn, all of one degree
+// and level. Readers check the header, the count and the length against
+// what the parameters and the program's layout allow and the checksum
+// before lattigo sees a byte of the payload. Version 1 (84 bytes, one
+// object, no count) is not read.
 const (
-	headerSize    = 84
-	formatVersion = 1
+	headerSize    = 88
+	formatVersion = 2
 )
 
 var objectMagic = [8]byte{'L', 'N', 'T', 'H', 'O', 'B', 'J', 0}
@@ -67,6 +72,19 @@ func (k objectKind) String() string {
 	return fmt.Sprintf("an object of unknown kind %d", uint16(k))
 }
 
+// plural names the objects of a count: "file holds 3 ciphertexts".
+func (k objectKind) plural() string {
+	switch k {
+	case kindSecretKey:
+		return "secret keys"
+	case kindEvalKeys:
+		return "evaluation key sets"
+	case kindCiphertext:
+		return "ciphertexts"
+	}
+	return "objects"
+}
+
 // noun is the kind without its article, for "ciphertext for another model".
 func (k objectKind) noun() string {
 	switch k {
@@ -99,8 +117,9 @@ func (c *countingWriter) Write(b []byte) (int, error) {
 
 // writeObject writes header and payload. body writes the payload; it is run
 // twice, once to hash it and once to write it, so no copy of a large key set
-// is held in memory. size is the payload size the object reports.
-func writeObject(w io.Writer, p *Params, kind objectKind, size int64, body func(io.Writer) error) error {
+// is held in memory. size is the payload size the object reports, count the
+// number of objects it holds.
+func writeObject(w io.Writer, p *Params, kind objectKind, count int, size int64, body func(io.Writer) error) error {
 	run := func(dst io.Writer) (int64, []byte, error) {
 		cw := &countingWriter{h: sha256.New(), w: dst}
 		bw := bufio.NewWriterSize(cw, 1<<16)
@@ -126,6 +145,7 @@ func writeObject(w io.Writer, p *Params, kind objectKind, size int64, body func(
 	copy(hdr[12:44], p.fp[:])
 	binary.LittleEndian.PutUint64(hdr[44:52], uint64(n))
 	copy(hdr[52:84], sum)
+	binary.LittleEndian.PutUint32(hdr[84:88], uint32(count))
 	if _, err := w.Write(hdr[:]); err != nil {
 		return err
 	}
@@ -140,12 +160,13 @@ func writeObject(w io.Writer, p *Params, kind objectKind, size int64, body func(
 }
 
 // readObject reads and checks a header and returns the checked payload.
-// maxPayload is the largest payload the parameters allow for this kind, and
-// sizeOK, if not nil, checks the declared length further (a ciphertext has
-// one of a few sizes). Both checks come before anything is allocated, and
-// the payload buffer then only grows as data actually arrives, so a header
-// that lies about the length costs nothing.
-func readObject(r io.Reader, p *Params, want objectKind, maxPayload int64, sizeOK func(int64) error) ([]byte, error) {
+// count is the number of objects the payload must hold, maxPayload the
+// largest payload the parameters allow for them, and sizeOK, if not nil,
+// checks the declared length further (a ciphertext has one of a few sizes).
+// These checks come before anything is allocated, and the payload buffer
+// then only grows as data actually arrives, so a header that lies about the
+// length costs nothing.
+func readObject(r io.Reader, p *Params, want objectKind, count int, maxPayload int64, sizeOK func(int64) error) ([]byte, error) {
 	var hdr [headerSize]byte
 	n, err := io.ReadFull(r, hdr[:])
 	switch {
@@ -168,6 +189,9 @@ func readObject(r io.Reader, p *Params, want objectKind, maxPayload int64, sizeO
 	}
 	if !bytes.Equal(hdr[12:44], p.fp[:]) {
 		return nil, fmt.Errorf("%s for another model (%s)", want.noun(), fingerprints(hdr[12:44], p.fp[:]))
+	}
+	if n := binary.LittleEndian.Uint32(hdr[84:88]); uint64(n) != uint64(count) {
+		return nil, fmt.Errorf("file holds %d %s, this program takes %d", n, want.plural(), count)
 	}
 	size := binary.LittleEndian.Uint64(hdr[44:52])
 	if size > uint64(maxPayload) {

@@ -16,7 +16,7 @@ var _ = runtime.APIVersion1
 // primes Q (q0 first; one level per prime after q0), the key-switching primes
 // P and the default scale 2^LogScale.
 //
-// Security: log2(QP) = 431. The largest log2(QP) for 128-bit classical security
+// Security: log2(QP) = 427. The largest log2(QP) for 128-bit classical security
 // at ring degree 2^14 is 438, according to the HomomorphicEncryption.org Security Standard (2018), Table 1: 128-bit classical security, uniform ternary secret, error σ = 3.2.
 // This estimate follows the standard's table only; it is not an audit.
 // Have a qualified cryptographer review any deployment.
@@ -24,14 +24,14 @@ var _ = runtime.APIVersion1
 // How the planner chose them:
 //   - depth 8: the longest chain of rescales and polynomial levels
 //   - scale 2^40: 20 bits of precision asked, noise and its growth through the model (gain 309)
-//   - q0 of 52 bits: values up to 306 at the default scale
-//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 431 and 8192 slots hold the period 16
+//   - q0 of 50 bits: outputs up to 114 at the default scale (interval arithmetic over the declared input range)
+//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 427 and 8192 slots hold the period 16
 var ParamSpec = runtime.ParamSpec{
 	LogN:     14,
-	Q:        []uint64{4503599627763713, 1099511922689, 1099512938497, 1099510054913, 1099514314753, 1099514478593, 1099508121601, 1099507695617, 1099515691009},
-	P:        []uint64{576460752302473217},
+	Q:        []uint64{1125899908022273, 1099511922689, 1099512938497, 1099510054913, 1099514314753, 1099514478593, 1099508121601, 1099507695617, 1099515691009},
+	P:        []uint64{144115188075593729},
 	LogScale: 40,
-	ModelID:  "0a6efaa556f9c0dc15cb89cb51a009ec",
+	ModelID:  "b38343f525eacb890ea487f942b1fb0b",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
@@ -43,7 +43,7 @@ var Keys = runtime.KeyRequest{
 
 // Info describes the program to the command line: its input features (10 values in
 // [-4, 4], laid out in slots [0, 10) of a period of 16 slots), its output risk
-// (1 values) and its parameters.
+// (1 values, laid out in slots [0, 1) of a period of 16 slots) and its parameters.
 func Info() runtime.ModelInfo {
 	return runtime.ModelInfo{
 		Name:       "gearbox",
@@ -53,7 +53,8 @@ func Info() runtime.ModelInfo {
 		InputMax:   4.0,
 		OutputName: "risk",
 		OutputSize: 1,
-		Period:     16,
+		Input:      runtime.Layout{Size: 10, Chunk: 16, Copies: 1, Period: 16},
+		Output:     runtime.Layout{Size: 1, Chunk: 16, Copies: 1, Period: 16},
 		Params:     ParamSpec,
 		Keys:       Keys,
 		Insecure:   false,

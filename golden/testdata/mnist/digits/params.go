@@ -16,7 +16,7 @@ var _ = runtime.APIVersion1
 // primes Q (q0 first; one level per prime after q0), the key-switching primes
 // P and the default scale 2^LogScale.
 //
-// Security: log2(QP) = 286. The largest log2(QP) for 128-bit classical security
+// Security: log2(QP) = 280. The largest log2(QP) for 128-bit classical security
 // at ring degree 2^14 is 438, according to the HomomorphicEncryption.org Security Standard (2018), Table 1: 128-bit classical security, uniform ternary secret, error σ = 3.2.
 // This estimate follows the standard's table only; it is not an audit.
 // Have a qualified cryptographer review any deployment.
@@ -24,11 +24,11 @@ var _ = runtime.APIVersion1
 // How the planner chose them:
 //   - depth 5: the longest chain of rescales and polynomial levels
 //   - scale 2^33: 12 bits of precision asked, noise and its growth through the model (gain 820)
-//   - q0 of 60 bits: values up to 2.14e+07 at the default scale
-//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 286 and 8192 slots hold the period 4096
+//   - q0 of 54 bits: outputs up to 1.61e+05 at the default scale (interval arithmetic over the declared input range)
+//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 280 and 8192 slots hold the period 4096
 var ParamSpec = runtime.ParamSpec{
 	LogN:     14,
-	Q:        []uint64{1152921504606748673, 8590163969, 8589475841, 8590458881, 8589279233, 8590688257},
+	Q:        []uint64{18014398508400641, 8590163969, 8589475841, 8590458881, 8589279233, 8590688257},
 	P:        []uint64{2305843009211662337},
 	LogScale: 33,
 	ModelID:  "2e4189202bf0e8a63c274c8c123fbc9a",
@@ -43,7 +43,7 @@ var Keys = runtime.KeyRequest{
 
 // Info describes the program to the command line: its input image (784 values in
 // [0, 1], laid out in slots [0, 784) of a period of 4096 slots), its output logits
-// (10 values) and its parameters.
+// (10 values, laid out in slots [0, 10) of a period of 4096 slots) and its parameters.
 func Info() runtime.ModelInfo {
 	return runtime.ModelInfo{
 		Name:       "digits",
@@ -53,7 +53,8 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "logits",
 		OutputSize: 10,
-		Period:     4096,
+		Input:      runtime.Layout{Size: 784, Chunk: 4096, Copies: 1, Period: 4096},
+		Output:     runtime.Layout{Size: 10, Chunk: 4096, Copies: 1, Period: 4096},
 		Params:     ParamSpec,
 		Keys:       Keys,
 		Insecure:   false,

@@ -84,13 +84,18 @@ func Load(params *runtime.Params) (*Model, error) {
 	return &Model{params: params, weights: w, pt: pt}, nil
 }
 
-// Evaluate runs the model on an encrypted image vector and returns the encrypted
-// scores. It needs only the evaluation keys in ev, never the secret key. The
-// code is straight-line, one statement per ciphertext operation; ev keeps the
-// first error and every later operation does nothing, so it is checked once.
+// Evaluate runs the model on an encrypted image vector (one ciphertext, as Encrypt
+// makes them from Info().Input) and returns the encrypted scores (one ciphertext).
+// It needs only the evaluation keys in ev, never the secret key. The code is
+// straight-line, one statement per ciphertext operation; ev keeps the first
+// error and every later operation does nothing, so it is checked once.
 //
 // The input must be at level 3 and scale 2^32, as Encrypt makes it.
-func (m *Model) Evaluate(ev *runtime.Evaluator, image *runtime.Ciphertext) (*runtime.Ciphertext, error) {
+func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
+	if len(x) != 1 {
+		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
+	}
+	image := x[0]
 	pt := m.pt
 	ev.Expect(image, 3, runtime.Scale{Pow2: 32})
 
@@ -171,5 +176,5 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, image *runtime.Ciphertext) (*run
 	pool1HeadOut := ev.AddPlain(pool1HeadFolded64, pt.Pool1HeadBias)
 	pool1HeadOutRescaled := ev.Rescale(pool1HeadOut)
 
-	return pool1HeadOutRescaled, ev.Err()
+	return []*runtime.Ciphertext{pool1HeadOutRescaled}, ev.Err()
 }

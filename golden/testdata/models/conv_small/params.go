@@ -16,7 +16,7 @@ var _ = runtime.APIVersion1
 // primes Q (q0 first; one level per prime after q0), the key-switching primes
 // P and the default scale 2^LogScale.
 //
-// Security: log2(QP) = 189. The largest log2(QP) for 128-bit classical security
+// Security: log2(QP) = 185. The largest log2(QP) for 128-bit classical security
 // at ring degree 2^13 is 218, according to the HomomorphicEncryption.org Security Standard (2018), Table 1: 128-bit classical security, uniform ternary secret, error σ = 3.2.
 // This estimate follows the standard's table only; it is not an audit.
 // Have a qualified cryptographer review any deployment.
@@ -24,12 +24,12 @@ var _ = runtime.APIVersion1
 // How the planner chose them:
 //   - depth 3: the longest chain of rescales and polynomial levels
 //   - scale 2^32: 16 bits of precision asked, noise and its growth through the model (gain 52.7)
-//   - q0 of 43 bits: values up to 196 at the default scale
-//   - logN 13: smallest ring whose 128-bit bound (218) holds log2(QP) = 189 and 4096 slots hold the period 128
+//   - q0 of 41 bits: outputs up to 47.3 at the default scale (interval arithmetic over the declared input range)
+//   - logN 13: smallest ring whose 128-bit bound (218) holds log2(QP) = 185 and 4096 slots hold the period 128
 var ParamSpec = runtime.ParamSpec{
 	LogN:     13,
-	Q:        []uint64{8796092858369, 4295049217, 4295294977, 4295344129},
-	P:        []uint64{1125899906826241},
+	Q:        []uint64{2199023288321, 4295049217, 4295294977, 4295344129},
+	P:        []uint64{281474976694273},
 	LogScale: 32,
 	ModelID:  "c87a7665046b39ac82559a2b0f725b58",
 }
@@ -43,7 +43,7 @@ var Keys = runtime.KeyRequest{
 
 // Info describes the program to the command line: its input image (36 values in
 // [0, 1], laid out in slots [0, 36) of a period of 128 slots), its output scores
-// (3 values) and its parameters.
+// (3 values, laid out in slots [0, 3) of a period of 128 slots) and its parameters.
 func Info() runtime.ModelInfo {
 	return runtime.ModelInfo{
 		Name:       "convsmall",
@@ -53,7 +53,8 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "scores",
 		OutputSize: 3,
-		Period:     128,
+		Input:      runtime.Layout{Size: 36, Chunk: 128, Copies: 1, Period: 128},
+		Output:     runtime.Layout{Size: 3, Chunk: 128, Copies: 1, Period: 128},
 		Params:     ParamSpec,
 		Keys:       Keys,
 		Insecure:   false,

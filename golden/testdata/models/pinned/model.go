@@ -54,13 +54,18 @@ func Load(params *runtime.Params) (*Model, error) {
 	return &Model{params: params, weights: w, pt: pt}, nil
 }
 
-// Evaluate runs the model on an encrypted input vector and returns the encrypted
-// output. It needs only the evaluation keys in ev, never the secret key. The
-// code is straight-line, one statement per ciphertext operation; ev keeps the
-// first error and every later operation does nothing, so it is checked once.
+// Evaluate runs the model on an encrypted input vector (one ciphertext, as Encrypt
+// makes them from Info().Input) and returns the encrypted output (one ciphertext).
+// It needs only the evaluation keys in ev, never the secret key. The code is
+// straight-line, one statement per ciphertext operation; ev keeps the first
+// error and every later operation does nothing, so it is checked once.
 //
 // The input must be at level 4 and scale 2^30, as Encrypt makes it.
-func (m *Model) Evaluate(ev *runtime.Evaluator, input *runtime.Ciphertext) (*runtime.Ciphertext, error) {
+func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
+	if len(x) != 1 {
+		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
+	}
+	input := x[0]
 	pt := m.pt
 	ev.Expect(input, 4, runtime.Scale{Pow2: 30})
 
@@ -96,5 +101,5 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, input *runtime.Ciphertext) (*run
 	dense2Acc1 := ev.Add(dense2Block0Sum, dense2Block1Rot)
 	dense2Acc1Rescaled := ev.Rescale(dense2Acc1)
 
-	return dense2Acc1Rescaled, ev.Err()
+	return []*runtime.Ciphertext{dense2Acc1Rescaled}, ev.Err()
 }

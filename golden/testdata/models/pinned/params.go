@@ -24,7 +24,7 @@ var _ = runtime.APIVersion1
 // How the planner chose them:
 //   - depth 3: the longest chain of rescales and polynomial levels
 //   - scale 2^30: 12 bits of precision asked, noise and its growth through the model (gain 9.54)
-//   - q0 of 50 bits: values up to 3.64 at the default scale
+//   - q0 of 50 bits: outputs up to 1.64 at the default scale (interval arithmetic over the declared input range)
 //   - logN 13: smallest ring whose 128-bit bound (218) holds log2(QP) = 215 and 4096 slots hold the period 4
 var ParamSpec = runtime.ParamSpec{
 	LogN:     13,
@@ -43,7 +43,7 @@ var Keys = runtime.KeyRequest{
 
 // Info describes the program to the command line: its input input (4 values in
 // [-1, 1], laid out in slots [0, 4) of a period of 4 slots), its output output
-// (2 values) and its parameters.
+// (2 values, laid out in slots [0, 2) of a period of 4 slots) and its parameters.
 func Info() runtime.ModelInfo {
 	return runtime.ModelInfo{
 		Name:       "pinned",
@@ -53,7 +53,8 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "output",
 		OutputSize: 2,
-		Period:     4,
+		Input:      runtime.Layout{Size: 4, Chunk: 4, Copies: 1, Period: 4},
+		Output:     runtime.Layout{Size: 2, Chunk: 4, Copies: 1, Period: 4},
 		Params:     ParamSpec,
 		Keys:       Keys,
 		Insecure:   false,

@@ -74,13 +74,18 @@ func Load(params *runtime.Params) (*Model, error) {
 	return &Model{params: params, weights: w, pt: pt}, nil
 }
 
-// Evaluate runs the model on an encrypted x vector and returns the encrypted
-// y. It needs only the evaluation keys in ev, never the secret key. The
-// code is straight-line, one statement per ciphertext operation; ev keeps the
-// first error and every later operation does nothing, so it is checked once.
+// Evaluate runs the model on an encrypted x vector (one ciphertext, as Encrypt
+// makes them from Info().Input) and returns the encrypted y (one ciphertext).
+// It needs only the evaluation keys in ev, never the secret key. The code is
+// straight-line, one statement per ciphertext operation; ev keeps the first
+// error and every later operation does nothing, so it is checked once.
 //
 // The input must be at level 9 and scale 2^35, as Encrypt makes it.
-func (m *Model) Evaluate(ev *runtime.Evaluator, x2 *runtime.Ciphertext) (*runtime.Ciphertext, error) {
+func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
+	if len(x) != 1 {
+		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
+	}
+	x2 := x[0]
 	pt := m.pt
 	ev.Expect(x2, 9, runtime.Scale{Pow2: 35})
 
@@ -140,5 +145,5 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x2 *runtime.Ciphertext) (*runtim
 	headAcc2 := ev.Add(headAcc1, headBlock2Rot)
 	headAcc2Rescaled := ev.Rescale(headAcc2)
 
-	return headAcc2Rescaled, ev.Err()
+	return []*runtime.Ciphertext{headAcc2Rescaled}, ev.Err()
 }

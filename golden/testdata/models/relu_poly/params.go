@@ -16,7 +16,7 @@ var _ = runtime.APIVersion1
 // primes Q (q0 first; one level per prime after q0), the key-switching primes
 // P and the default scale 2^LogScale.
 //
-// Security: log2(QP) = 406. The largest log2(QP) for 128-bit classical security
+// Security: log2(QP) = 404. The largest log2(QP) for 128-bit classical security
 // at ring degree 2^14 is 438, according to the HomomorphicEncryption.org Security Standard (2018), Table 1: 128-bit classical security, uniform ternary secret, error σ = 3.2.
 // This estimate follows the standard's table only; it is not an audit.
 // Have a qualified cryptographer review any deployment.
@@ -24,12 +24,12 @@ var _ = runtime.APIVersion1
 // How the planner chose them:
 //   - depth 9: the longest chain of rescales and polynomial levels
 //   - scale 2^35: 20 bits of precision asked, noise and its growth through the model (gain 10.1)
-//   - q0 of 42 bits: values up to 13.1 at the default scale
-//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 406 and 8192 slots hold the period 8
+//   - q0 of 41 bits: outputs up to 5.53 at the default scale (interval arithmetic over the declared input range)
+//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 404 and 8192 slots hold the period 8
 var ParamSpec = runtime.ParamSpec{
 	LogN:     14,
-	Q:        []uint64{4398046150657, 34359771137, 34359410689, 34359214081, 34358788097, 34360754177, 34357805057, 34357444609, 34357411841, 34362163201},
-	P:        []uint64{562949952798721},
+	Q:        []uint64{2199023288321, 34359771137, 34359410689, 34359214081, 34358788097, 34360754177, 34357805057, 34357444609, 34357411841, 34362163201},
+	P:        []uint64{281474976546817},
 	LogScale: 35,
 	ModelID:  "36d33166165c4bc5271b067dc7dc5aa7",
 }
@@ -43,7 +43,7 @@ var Keys = runtime.KeyRequest{
 
 // Info describes the program to the command line: its input x (5 values in
 // [-1, 1], laid out in slots [0, 5) of a period of 8 slots), its output y
-// (1 values) and its parameters.
+// (1 values, laid out in slots [0, 1) of a period of 8 slots) and its parameters.
 func Info() runtime.ModelInfo {
 	return runtime.ModelInfo{
 		Name:       "relupoly",
@@ -53,7 +53,8 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "y",
 		OutputSize: 1,
-		Period:     8,
+		Input:      runtime.Layout{Size: 5, Chunk: 8, Copies: 1, Period: 8},
+		Output:     runtime.Layout{Size: 1, Chunk: 8, Copies: 1, Period: 8},
 		Params:     ParamSpec,
 		Keys:       Keys,
 		Insecure:   false,

@@ -58,13 +58,18 @@ func Load(params *runtime.Params) (*Model, error) {
 	return &Model{params: params, weights: w, pt: pt}, nil
 }
 
-// Evaluate runs the model on an encrypted input vector and returns the encrypted
-// scores. It needs only the evaluation keys in ev, never the secret key. The
-// code is straight-line, one statement per ciphertext operation; ev keeps the
-// first error and every later operation does nothing, so it is checked once.
+// Evaluate runs the model on an encrypted input vector (one ciphertext, as Encrypt
+// makes them from Info().Input) and returns the encrypted scores (one ciphertext).
+// It needs only the evaluation keys in ev, never the secret key. The code is
+// straight-line, one statement per ciphertext operation; ev keeps the first
+// error and every later operation does nothing, so it is checked once.
 //
 // The input must be at level 5 and scale 2^31, as Encrypt makes it.
-func (m *Model) Evaluate(ev *runtime.Evaluator, input *runtime.Ciphertext) (*runtime.Ciphertext, error) {
+func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
+	if len(x) != 1 {
+		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
+	}
+	input := x[0]
 	pt := m.pt
 	ev.Expect(input, 5, runtime.Scale{Pow2: 31})
 
@@ -99,5 +104,5 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, input *runtime.Ciphertext) (*run
 	dense2Out := ev.AddPlain(dense2Acc1, pt.Dense2Bias)
 	dense2OutRescaled := ev.Rescale(dense2Out)
 
-	return dense2OutRescaled, ev.Err()
+	return []*runtime.Ciphertext{dense2OutRescaled}, ev.Err()
 }

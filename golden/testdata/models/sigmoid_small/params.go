@@ -16,7 +16,7 @@ var _ = runtime.APIVersion1
 // primes Q (q0 first; one level per prime after q0), the key-switching primes
 // P and the default scale 2^LogScale.
 //
-// Security: log2(QP) = 234. The largest log2(QP) for 128-bit classical security
+// Security: log2(QP) = 232. The largest log2(QP) for 128-bit classical security
 // at ring degree 2^14 is 438, according to the HomomorphicEncryption.org Security Standard (2018), Table 1: 128-bit classical security, uniform ternary secret, error σ = 3.2.
 // This estimate follows the standard's table only; it is not an audit.
 // Have a qualified cryptographer review any deployment.
@@ -24,12 +24,12 @@ var _ = runtime.APIVersion1
 // How the planner chose them:
 //   - depth 5: the longest chain of rescales and polynomial levels
 //   - scale 2^31: 16 bits of precision asked, noise and its growth through the model (gain 12.2)
-//   - q0 of 36 bits: values up to 2.21 at the default scale
-//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 234 and 8192 slots hold the period 4
+//   - q0 of 35 bits: outputs up to 1.74 at the default scale (interval arithmetic over the declared input range)
+//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 232 and 8192 slots hold the period 4
 var ParamSpec = runtime.ParamSpec{
 	LogN:     14,
-	Q:        []uint64{68720066561, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369},
-	P:        []uint64{8796092858369},
+	Q:        []uint64{34359771137, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369},
+	P:        []uint64{4398046150657},
 	LogScale: 31,
 	ModelID:  "90847322778d1a2775d9a47a5cfb4d84",
 }
@@ -43,7 +43,7 @@ var Keys = runtime.KeyRequest{
 
 // Info describes the program to the command line: its input input (3 values in
 // [-1, 1], laid out in slots [0, 3) of a period of 4 slots), its output scores
-// (2 values) and its parameters.
+// (2 values, laid out in slots [0, 2) of a period of 4 slots) and its parameters.
 func Info() runtime.ModelInfo {
 	return runtime.ModelInfo{
 		Name:       "sigsmall",
@@ -53,7 +53,8 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "scores",
 		OutputSize: 2,
-		Period:     4,
+		Input:      runtime.Layout{Size: 3, Chunk: 4, Copies: 1, Period: 4},
+		Output:     runtime.Layout{Size: 2, Chunk: 4, Copies: 1, Period: 4},
 		Params:     ParamSpec,
 		Keys:       Keys,
 		Insecure:   false,
