@@ -14,14 +14,28 @@ import (
 // the parameters it was made under, so that a ciphertext of another model
 // is refused instead of computed on. Ciphertexts are never modified after
 // creation: every op returns a new one.
+//
+// A ciphertext returned by an Evaluator with more than one thread may still
+// be computing: every method and every function that reads it waits for it
+// first (and finds nil if its op failed).
 type Ciphertext struct {
 	ct *rlwe.Ciphertext
 	fp [sha256.Size]byte
+	f  *future // set by a parallel Evaluator: the op that makes ct
+}
+
+// wait blocks until the op that makes ct is done; a nil or finished
+// ciphertext returns at once.
+func (ct *Ciphertext) wait() {
+	if ct != nil && ct.f != nil {
+		<-ct.f.done
+	}
 }
 
 // Level returns the ciphertext's level (the number of rescales it can still
 // take), or -1 for a nil ciphertext.
 func (ct *Ciphertext) Level() int {
+	ct.wait()
 	if ct == nil || ct.ct == nil {
 		return -1
 	}
@@ -31,6 +45,7 @@ func (ct *Ciphertext) Level() int {
 // Degree returns the ciphertext's degree: 1 normally, 2 after Mul and before
 // Relinearize; -1 for a nil ciphertext.
 func (ct *Ciphertext) Degree() int {
+	ct.wait()
 	if ct == nil || ct.ct == nil {
 		return -1
 	}
@@ -41,6 +56,7 @@ func (ct *Ciphertext) Degree() int {
 // (NaN for a nil ciphertext). Scales are compared exactly inside the
 // evaluator, never through this value.
 func (ct *Ciphertext) Scale() float64 {
+	ct.wait()
 	if ct == nil || ct.ct == nil || ct.ct.MetaData == nil {
 		return math.NaN()
 	}
@@ -79,6 +95,7 @@ func (p *Params) wrap(ct *rlwe.Ciphertext) *Ciphertext {
 // checkCiphertext verifies that ct belongs to p and is well formed, so that
 // lattigo never sees a ciphertext of another ring degree or level count.
 func (p *Params) checkCiphertext(ct *Ciphertext) error {
+	ct.wait()
 	if ct == nil || ct.ct == nil {
 		return errors.New("nil ciphertext")
 	}
@@ -109,6 +126,9 @@ func (p *Params) checkCiphertext(ct *Ciphertext) error {
 // checkAt checks that ct is at the level and exact scale at, with the given
 // degree; the error says what differs.
 func (p *Params) checkAt(ct *Ciphertext, at LevelScale, degree int) error {
+	if err := p.checkCiphertext(ct); err != nil {
+		return err
+	}
 	want, err := p.rlweScale(at.Scale)
 	if err != nil {
 		return err

@@ -6,6 +6,7 @@ import (
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 	"github.com/tuneinsight/lattigo/v5/he/hefloat"
+	"github.com/tuneinsight/lattigo/v5/ring/ringqp"
 )
 
 // Evaluator runs ciphertext ops; its methods mirror the IR ops. It keeps
@@ -17,19 +18,46 @@ import (
 // levels, degrees, exact scales, keys) and returns a new ciphertext; inputs
 // are never modified. An Evaluator is not safe for concurrent use: give each
 // goroutine its own ShallowCopy.
+//
+// With more than one thread (NewParallelEvaluator) the ops run concurrently
+// as their arguments become ready, with results bit-identical to a
+// one-thread run; Err waits for them (see pool.go). Then an op issued after
+// a failure may still have run before the failure was known: its result is
+// to be discarded with the rest, as generated code does.
 type Evaluator struct {
-	p    *Params
-	keys *EvaluationKeys
-	ev   *hefloat.Evaluator
-	poly *hefloat.PolynomialEvaluator
-	err  error
-	ops  int
+	p       *Params
+	keys    *EvaluationKeys
+	ev      *hefloat.Evaluator
+	poly    *hefloat.PolynomialEvaluator
+	err     error
+	ops     int
+	threads int
+	pool    *pool // nil with one thread: each op runs when it is called
 }
 
-// NewEvaluator makes an evaluator with the evaluation keys k (nil for none:
-// then only ops that need no key work).
+// NewEvaluator makes a one-thread evaluator with the evaluation keys k (nil
+// for none: then only ops that need no key work). Each op runs when it is
+// called.
 func NewEvaluator(p *Params, k *EvaluationKeys) *Evaluator {
-	e := &Evaluator{p: p, keys: k}
+	return NewParallelEvaluator(p, k, 1)
+}
+
+// MaxThreads bounds the threads of an Evaluator: each thread past the first
+// holds its own copy of lattigo's scratch buffers.
+const MaxThreads = 256
+
+// NewParallelEvaluator makes an evaluator that runs independent ops on up
+// to threads goroutines (1..MaxThreads), each with its own lattigo
+// evaluator. With more than one thread every op returns at once and its
+// result is computed when its arguments are; anything that reads a result
+// (Err, Level, Decrypt, writing it) waits for it. Results, and the first
+// error, are those of a one-thread run.
+func NewParallelEvaluator(p *Params, k *EvaluationKeys, threads int) *Evaluator {
+	e := &Evaluator{p: p, keys: k, threads: threads}
+	if threads < 1 || threads > MaxThreads {
+		e.err = fmt.Errorf("evaluator: %d threads, want 1..%d", threads, MaxThreads)
+		return e
+	}
 	if !p.ok() {
 		e.err = errors.New("evaluator: nil parameters (or not made by NewParams)")
 		return e
@@ -49,16 +77,20 @@ func NewEvaluator(p *Params, k *EvaluationKeys) *Evaluator {
 		e.ev = hefloat.NewEvaluator(p.hp, set)
 		e.poly = hefloat.NewPolynomialEvaluator(p.hp, e.ev)
 	}()
+	if e.err == nil && threads > 1 {
+		e.pool = newPool(p, &lane{ev: e.ev, poly: e.poly}, threads)
+	}
 	return e
 }
 
 // ShallowCopy returns an evaluator sharing the keys but with its own
-// buffers and its own error state, for use in another goroutine.
+// buffers, its own error state and as many threads, for use in another
+// goroutine.
 func (e *Evaluator) ShallowCopy() *Evaluator {
 	if e == nil {
 		return nil
 	}
-	c := &Evaluator{p: e.p, keys: e.keys}
+	c := &Evaluator{p: e.p, keys: e.keys, threads: e.threads}
 	if e.ev == nil {
 		c.err = e.err
 		return c
@@ -68,46 +100,112 @@ func (e *Evaluator) ShallowCopy() *Evaluator {
 		c.ev = e.ev.ShallowCopy()
 		c.poly = hefloat.NewPolynomialEvaluator(e.p.hp, c.ev)
 	}()
+	if c.err == nil && c.threads > 1 {
+		c.pool = newPool(c.p, &lane{ev: c.ev, poly: c.poly}, c.threads)
+	}
 	return c
 }
 
-// Err returns the first error the evaluator met, or nil.
+// Threads returns the number of goroutines the evaluator computes on.
+func (e *Evaluator) Threads() int {
+	if e == nil || e.threads < 1 {
+		return 1
+	}
+	return e.threads
+}
+
+// Err waits for every op issued so far and returns the first error the
+// evaluator met, in program order, or nil.
 func (e *Evaluator) Err() error {
 	if e == nil {
 		return errors.New("evaluator: nil evaluator")
 	}
+	if e.pool != nil {
+		if err := e.pool.wait(); err != nil && e.err == nil {
+			e.err = err
+		}
+	}
 	return e.err
 }
 
-// do runs one op under the sticky error and the panic guard.
-func (e *Evaluator) do(name func() string, op func() (*rlwe.Ciphertext, error)) *Ciphertext {
+// start counts one op and reports whether it should run: no earlier op
+// failed and the evaluator is usable.
+func (e *Evaluator) start(name func() string) bool {
 	if e == nil || e.err != nil {
-		return nil
+		return false
 	}
 	e.ops++
 	if !e.p.ok() || e.ev == nil {
 		e.err = fmt.Errorf("op %d (%s): evaluator not made by NewEvaluator", e.ops, name())
-		return nil
+		return false
 	}
-	var out *rlwe.Ciphertext
-	err := func() (err error) {
-		defer recoverTo(&err, "")
-		out, err = op()
-		return err
-	}()
+	// In parallel, once a failure is known every later op would be
+	// skipped: return nil at once, as the one-thread run does.
+	return e.pool == nil || !e.pool.failed()
+}
+
+// runOp runs op with lane l under the panic guard.
+func runOp(op func(l *lane) (*rlwe.Ciphertext, error), l *lane) (out *rlwe.Ciphertext, err error) {
+	defer recoverTo(&err, "")
+	out, err = op(l)
 	if err == nil && out == nil {
 		err = errors.New("no result")
 	}
-	if err != nil {
-		e.err = fmt.Errorf("op %d (%s): %w", e.ops, name(), err)
-		return nil
-	}
-	return e.p.wrap(out)
+	return out, err
 }
 
-// fail records an error found after do returned, under the same op number.
-func (e *Evaluator) fail(name string, err error) {
-	e.err = fmt.Errorf("op %d (%s): %w", e.ops, name, err)
+// do runs one op under the sticky error and the panic guard: at once with
+// one thread, as a task of the pool otherwise. args are the ciphertexts op
+// reads; the task runs once they are done.
+func (e *Evaluator) do(name func() string, args []*Ciphertext, op func(l *lane) (*rlwe.Ciphertext, error)) *Ciphertext {
+	if !e.start(name) {
+		return nil
+	}
+	seq := e.ops
+	if e.pool == nil {
+		out, err := runOp(op, &lane{ev: e.ev, poly: e.poly})
+		if err != nil {
+			e.err = fmt.Errorf("op %d (%s): %w", seq, name(), err)
+			return nil
+		}
+		return e.p.wrap(out)
+	}
+	q := e.pool
+	res := q.newFuture()
+	q.submit(&task{seq: seq, outs: []*Ciphertext{res}, run: func(l *lane) []*task {
+		out, err := runOp(op, l)
+		if err != nil {
+			q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+			return nil
+		}
+		res.ct = out
+		return nil
+	}}, args...)
+	return res
+}
+
+// inline runs a check that computes nothing, at once, after waiting for
+// args; a failure is recorded under its op number like any op's.
+func (e *Evaluator) inline(name func() string, args []*Ciphertext, check func() error) {
+	if !e.start(name) {
+		return
+	}
+	for _, a := range args {
+		a.wait()
+	}
+	err := func() (err error) {
+		defer recoverTo(&err, "")
+		return check()
+	}()
+	if err == nil {
+		return
+	}
+	err = fmt.Errorf("op %d (%s): %w", e.ops, name(), err)
+	if e.pool == nil {
+		e.err = err
+	} else {
+		e.pool.fail(e.ops, 0, err)
+	}
 }
 
 func (e *Evaluator) check(cts ...*Ciphertext) error {
@@ -147,7 +245,7 @@ func (e *Evaluator) rotationKey(k int) error {
 // Rotate rotates the slot vector left by step: slot i of the result holds
 // slot i+step (mod Slots) of ct.
 func (e *Evaluator) Rotate(ct *Ciphertext, step int) *Ciphertext {
-	return e.do(func() string { return fmt.Sprintf("rotate %d", step) }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return fmt.Sprintf("rotate %d", step) }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -161,46 +259,39 @@ func (e *Evaluator) Rotate(ct *Ciphertext, step int) *Ciphertext {
 		if err := e.rotationKey(k); err != nil {
 			return nil, err
 		}
-		return e.ev.RotateNew(ct.ct, k)
+		return l.ev.RotateNew(ct.ct, k)
 	})
 }
 
 // RotateHoisted rotates ct left by each of steps, sharing one key-switch
 // decomposition of ct among them; result i is the rotation by steps[i].
+// The result always has len(steps) entries (nil after a failure), so that
+// generated code may index it before it checks Err. With several threads
+// the rotations by distinct steps run concurrently on one decomposition.
 func (e *Evaluator) RotateHoisted(ct *Ciphertext, steps ...int) []*Ciphertext {
-	if e == nil || e.err != nil {
-		return nil
-	}
-	name := func() string { return fmt.Sprintf("rotate-hoisted %v", steps) }
-	var rots map[int]*rlwe.Ciphertext
-	// do returns one ciphertext: here the input, as a token of success; the
-	// rotations come out through rots.
-	if e.do(name, func() (*rlwe.Ciphertext, error) {
-		if err := e.check(ct); err != nil {
-			return nil, err
-		}
-		if err := degreeOne(ct, "rotation"); err != nil {
-			return nil, err
-		}
-		ks := normalizeSteps(e.p.Slots(), steps)
-		for _, k := range ks {
-			if err := e.rotationKey(k); err != nil {
-				return nil, err
-			}
-		}
-		rots = map[int]*rlwe.Ciphertext{}
-		if len(ks) > 0 {
-			var err error
-			if rots, err = e.ev.RotateHoistedNew(ct.ct, ks); err != nil {
-				return nil, err
-			}
-		}
-		return ct.ct, nil
-	}) == nil {
-		return nil
-	}
 	out := make([]*Ciphertext, len(steps))
+	name := func() string { return fmt.Sprintf("rotate-hoisted %v", steps) }
+	if !e.start(name) {
+		return out
+	}
+	if e.pool != nil {
+		e.rotateHoistedTasks(ct, steps, out, name)
+		return out
+	}
+	var rots map[int]*rlwe.Ciphertext
+	err := func() (err error) {
+		defer recoverTo(&err, "")
+		ks, err := e.hoistedSteps(ct, steps)
+		if err != nil || len(ks) == 0 {
+			return err
+		}
+		rots, err = e.ev.RotateHoistedNew(ct.ct, ks)
+		return err
+	}()
 	for i, s := range steps {
+		if err != nil {
+			break
+		}
 		k := e.p.normStep(s)
 		if k == 0 {
 			out[i] = e.p.wrap(ct.ct.CopyNew())
@@ -208,18 +299,120 @@ func (e *Evaluator) RotateHoisted(ct *Ciphertext, steps ...int) []*Ciphertext {
 		}
 		r, ok := rots[k]
 		if !ok || r == nil {
-			e.fail(name(), fmt.Errorf("lattigo returned no rotation for step %d", s))
-			return nil
+			err = fmt.Errorf("lattigo returned no rotation for step %d", s)
+			break
 		}
 		out[i] = e.p.wrap(r)
 	}
+	if err != nil {
+		e.err = fmt.Errorf("op %d (%s): %w", e.ops, name(), err)
+		clear(out)
+	}
 	return out
+}
+
+// hoistedSteps checks a hoisted rotation of ct and returns its distinct
+// nonzero normalised steps.
+func (e *Evaluator) hoistedSteps(ct *Ciphertext, steps []int) ([]int, error) {
+	if err := e.check(ct); err != nil {
+		return nil, err
+	}
+	if err := degreeOne(ct, "rotation"); err != nil {
+		return nil, err
+	}
+	ks := normalizeSteps(e.p.Slots(), steps)
+	for _, k := range ks {
+		if err := e.rotationKey(k); err != nil {
+			return nil, err
+		}
+	}
+	return ks, nil
+}
+
+// rotateHoistedTasks submits a hoisted rotation to the pool: one task
+// checks ct and decomposes it, then splits into one task per distinct step,
+// all reading that decomposition. Each step is computed as lattigo's
+// RotateHoisted computes it (DecomposeNTT, then AutomorphismHoisted with
+// the same arguments), so the results are bit-identical.
+func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphertext, name func() string) {
+	q, p, seq := e.pool, e.p, e.ops
+	for i := range out {
+		out[i] = q.newFuture()
+	}
+	// The parent finishes every result if it fails; else only the zero
+	// steps, and each child the results of its step.
+	parent := &task{seq: seq, outs: out}
+	parent.run = func(l *lane) []*task {
+		var children []*task
+		var zero []*Ciphertext
+		err := func() (err error) {
+			defer recoverTo(&err, "")
+			ks, err := e.hoistedSteps(ct, steps)
+			if err != nil {
+				return err
+			}
+			in := ct.ct
+			for i, s := range steps {
+				if p.normStep(s) == 0 {
+					out[i].ct = in.CopyNew()
+					zero = append(zero, out[i])
+				}
+			}
+			if len(ks) == 0 {
+				return nil
+			}
+			hp := p.hp
+			level, levelP := in.Level(), hp.MaxLevelP()
+			decomp := make([]ringqp.Poly, hp.BaseRNSDecompositionVectorSize(level, levelP))
+			for i := range decomp {
+				decomp[i] = hp.RingQP().NewPoly()
+			}
+			l.ev.DecomposeNTT(level, levelP, hp.PCount(), in.Value[1], in.IsNTT, decomp)
+			for j, k := range ks {
+				var mine []*Ciphertext
+				for i, s := range steps {
+					if p.normStep(s) == k {
+						mine = append(mine, out[i])
+					}
+				}
+				galEl, sub := hp.GaloisElement(k), j+1
+				children = append(children, &task{seq: seq, sub: sub, outs: mine, run: func(l *lane) []*task {
+					err := func() (err error) {
+						defer recoverTo(&err, "")
+						r := hefloat.NewCiphertext(hp, 1, level)
+						if err := l.ev.AutomorphismHoisted(level, in, decomp, galEl, r); err != nil {
+							return fmt.Errorf("cannot RotateHoisted: %w", err)
+						}
+						for _, c := range mine {
+							c.ct = r
+						}
+						return nil
+					}()
+					if err != nil {
+						q.fail(seq, sub, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+					}
+					return nil
+				}})
+			}
+			return nil
+		}()
+		if err != nil {
+			for _, c := range out {
+				c.ct = nil
+			}
+			q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+			return nil
+		}
+		parent.outs = zero
+		return children
+	}
+	q.submit(parent, ct)
 }
 
 // MulPlain multiplies ct by pt slot-wise. It does not rescale; the result's
 // scale is the product of the two scales. Levels must match.
 func (e *Evaluator) MulPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext {
-	return e.do(func() string { return "mul-plain" }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return "mul-plain" }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -232,13 +425,13 @@ func (e *Evaluator) MulPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext {
 		if err := sameLevel(ct.Level(), pt.Level(), "plaintext"); err != nil {
 			return nil, err
 		}
-		return e.ev.MulNew(ct.ct, pt.pt)
+		return l.ev.MulNew(ct.ct, pt.pt)
 	})
 }
 
 // AddPlain adds pt to ct slot-wise. Levels and scales must match exactly.
 func (e *Evaluator) AddPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext {
-	return e.do(func() string { return "add-plain" }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return "add-plain" }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -251,14 +444,14 @@ func (e *Evaluator) AddPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext {
 		if !sameScale(ct.ct.Scale, pt.pt.Scale) {
 			return nil, fmt.Errorf("scales differ: ciphertext %s, plaintext %s (%v)", fmtScale(ct.ct.Scale), fmtScale(pt.pt.Scale), pt.scale)
 		}
-		return e.ev.AddNew(ct.ct, pt.pt)
+		return l.ev.AddNew(ct.ct, pt.pt)
 	})
 }
 
 // Add adds two ciphertexts slot-wise. Levels and scales must match
 // exactly; lattigo would otherwise rescale one operand silently.
 func (e *Evaluator) Add(a, b *Ciphertext) *Ciphertext {
-	return e.do(func() string { return "add" }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return "add" }, []*Ciphertext{a, b}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(a, b); err != nil {
 			return nil, err
 		}
@@ -268,7 +461,7 @@ func (e *Evaluator) Add(a, b *Ciphertext) *Ciphertext {
 		if !sameScale(a.ct.Scale, b.ct.Scale) {
 			return nil, fmt.Errorf("scales differ: %s and %s", fmtScale(a.ct.Scale), fmtScale(b.ct.Scale))
 		}
-		return e.ev.AddNew(a.ct, b.ct)
+		return l.ev.AddNew(a.ct, b.ct)
 	})
 }
 
@@ -276,7 +469,7 @@ func (e *Evaluator) Add(a, b *Ciphertext) *Ciphertext {
 // 2 (no relinearization) and the product of the scales (no rescale).
 // Levels must match.
 func (e *Evaluator) Mul(a, b *Ciphertext) *Ciphertext {
-	return e.do(func() string { return "mul" }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return "mul" }, []*Ciphertext{a, b}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(a, b); err != nil {
 			return nil, err
 		}
@@ -290,7 +483,7 @@ func (e *Evaluator) Mul(a, b *Ciphertext) *Ciphertext {
 			return nil, err
 		}
 		out := hefloat.NewCiphertext(e.p.hp, 2, a.Level())
-		if err := e.ev.Mul(a.ct, b.ct, out); err != nil {
+		if err := l.ev.Mul(a.ct, b.ct, out); err != nil {
 			return nil, err
 		}
 		return out, nil
@@ -300,7 +493,7 @@ func (e *Evaluator) Mul(a, b *Ciphertext) *Ciphertext {
 // Relinearize brings a degree-2 ciphertext back to degree 1 with the
 // relinearization key.
 func (e *Evaluator) Relinearize(ct *Ciphertext) *Ciphertext {
-	return e.do(func() string { return "relinearize" }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return "relinearize" }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -310,14 +503,14 @@ func (e *Evaluator) Relinearize(ct *Ciphertext) *Ciphertext {
 		if !e.keys.HasRelinearization() {
 			return nil, errors.New("no relinearization key loaded")
 		}
-		return e.ev.RelinearizeNew(ct.ct)
+		return l.ev.RelinearizeNew(ct.ct)
 	})
 }
 
 // Rescale divides ct by q_level, the prime of its level, exactly: the level
 // drops by one and the scale is divided by that prime.
 func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
-	return e.do(func() string { return "rescale" }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return "rescale" }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -325,7 +518,7 @@ func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
 			return nil, errors.New("rescale needs level > 0, ciphertext is at level 0")
 		}
 		out := hefloat.NewCiphertext(e.p.hp, ct.Degree(), ct.Level()-1)
-		if err := e.ev.Rescale(ct.ct, out); err != nil {
+		if err := l.ev.Rescale(ct.ct, out); err != nil {
 			return nil, err
 		}
 		return out, nil
@@ -334,35 +527,35 @@ func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
 
 // DropLevel lowers ct by n levels without dividing it (the scale stays).
 func (e *Evaluator) DropLevel(ct *Ciphertext, n int) *Ciphertext {
-	return e.do(func() string { return fmt.Sprintf("drop-level %d", n) }, func() (*rlwe.Ciphertext, error) {
+	return e.do(func() string { return fmt.Sprintf("drop-level %d", n) }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
 		if n < 0 || n > ct.Level() {
 			return nil, fmt.Errorf("cannot drop %d levels from level %d", n, ct.Level())
 		}
-		return e.ev.DropLevelNew(ct.ct, n), nil
+		return l.ev.DropLevelNew(ct.ct, n), nil
 	})
 }
 
 // Expect records an error if ct is not at the given level and exact scale.
 // Generated code calls it on its inputs, so a ciphertext made for another
-// plan fails at once with a clear message.
+// plan fails at once with a clear message. It waits for ct.
 func (e *Evaluator) Expect(ct *Ciphertext, level int, scale Scale) {
-	e.do(func() string { return fmt.Sprintf("expect level %d, scale %v", level, scale) }, func() (*rlwe.Ciphertext, error) {
+	e.inline(func() string { return fmt.Sprintf("expect level %d, scale %v", level, scale) }, []*Ciphertext{ct}, func() error {
 		if err := e.check(ct); err != nil {
-			return nil, err
+			return err
 		}
 		if ct.Level() != level {
-			return nil, fmt.Errorf("ciphertext at level %d", ct.Level())
+			return fmt.Errorf("ciphertext at level %d", ct.Level())
 		}
 		want, err := e.p.rlweScale(scale)
 		if err != nil {
-			return nil, err
+			return err
 		}
 		if !sameScale(ct.ct.Scale, want) {
-			return nil, fmt.Errorf("ciphertext at scale %s, want %s", fmtScale(ct.ct.Scale), fmtScale(want))
+			return fmt.Errorf("ciphertext at scale %s, want %s", fmtScale(ct.ct.Scale), fmtScale(want))
 		}
-		return ct.ct, nil
+		return nil
 	})
 }

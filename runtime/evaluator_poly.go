@@ -38,7 +38,7 @@ func (e *Evaluator) Poly(ct *Ciphertext, poly *Polynomial, target Scale) *Cipher
 		}
 		return fmt.Sprintf("poly %q (%v, degree %d)", poly.name, poly.basis, poly.Degree())
 	}
-	return e.do(name, func() (*rlwe.Ciphertext, error) {
+	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -78,7 +78,7 @@ func (e *Evaluator) Poly(ct *Ciphertext, poly *Polynomial, target Scale) *Cipher
 		bp := bignum.NewPolynomial(basis, coeffs, [2]float64{-1, 1})
 		// lattigo keeps the input as the first power of its power basis;
 		// it gets a copy so that ct stays untouched.
-		out, err := e.poly.Evaluate(ct.ct.CopyNew(), bp, targetScale)
+		out, err := l.poly.Evaluate(ct.ct.CopyNew(), bp, targetScale)
 		if err != nil {
 			return nil, err
 		}
@@ -89,7 +89,7 @@ func (e *Evaluator) Poly(ct *Ciphertext, poly *Polynomial, target Scale) *Cipher
 			return nil, fmt.Errorf("lattigo consumed %d levels, want %d", ct.Level()-out.Level(), depth)
 		}
 		if out.Level() > want {
-			e.ev.DropLevel(out, out.Level()-want)
+			l.ev.DropLevel(out, out.Level()-want)
 		}
 		if d := relDiff(&out.Scale.Value, &targetScale.Value); !(d <= polyScaleTolerance) {
 			return nil, fmt.Errorf("result scale %s is %.3g away from the target %s (relative), more than 2^-30", fmtScale(out.Scale), d, fmtScale(targetScale))

@@ -55,11 +55,7 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
-	budget, err := keyBudgetBytes(*pf.maxKeysMB)
-	if err != nil {
-		return &exitError{code: 2, err: err}
-	}
-	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj, MaxKeyBytes: budget})
+	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj})
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
@@ -76,9 +72,6 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	}
 	if obj != passes.Latency {
 		cmd += " -objective " + obj.String()
-	}
-	if budget > 0 {
-		cmd += fmt.Sprintf(" -max-keys-mb %g", *pf.maxKeysMB)
 	}
 	if len(diffs) == 0 {
 		fmt.Fprintf(stdout, "%s is up to date: its %d files are what %s writes\n", *pf.out, len(files), cmd)
