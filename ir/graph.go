@@ -78,6 +78,9 @@ type Graph struct {
 	Precision  int       // target bits of absolute precision of the outputs
 	Pin        *ParamPin // parameters pinned by the spec, or nil
 	Insecure   bool      // the spec accepts parameters above the 128-bit bound
+	// NoOutputMask is set by output: {mask: false}: the result may keep
+	// what the last layer leaves beyond the outputs (see passes' maskOutput).
+	NoOutputMask bool
 }
 
 // Input describes the model's input tensor and the range of its values.

@@ -34,6 +34,8 @@ var Pipeline = []Pass{
 		Why: "consecutive linear layers become their product: one level and one rescale instead of one each"},
 	{Name: "lower", Run: lower, Required: true, Stage: ir.Lowered,
 		Why: "lay vectors out in slots; dense layers become baby-step giant-step diagonal products, activations polynomials"},
+	{Name: "output-mask", Run: maskOutput, Stage: ir.Lowered,
+		Why: "the result holds only outputs: zero what else the last layer leaves (partial sums, an activation's p(0)), folded into its constants where possible"},
 	{Name: "relinearize", Run: placeRelinearize, Required: true, Stage: ir.Relinearized,
 		Why: "bring every ciphertext product back to degree 1 before it is rotated, multiplied or returned"},
 	{Name: "rescale", Run: placeRescale, Required: true, Stage: ir.Relinearized,
@@ -42,6 +44,8 @@ var Pipeline = []Pass{
 		Why: "pick the smallest ring degree whose 128-bit bound holds the modulus chain the depth and precision need"},
 	{Name: "levels", Run: assignLevels, Required: true, Stage: ir.Leveled,
 		Why: "assign levels and exact scales; encode plaintexts at the scale of the prime the next rescale drops"},
+	{Name: "key-budget", Run: keyBudget, Stage: ir.Leveled,
+		Why: "under a key budget, keep fewer rotation keys and compose the other rotations as chains of them"},
 	{Name: "keys", Run: collectKeys, Required: true, Stage: ir.Keyed,
 		Why: "the Galois key set is exactly the rotations used"},
 	{Name: "names", Run: nameValues, Required: true, Stage: ir.Keyed,
@@ -61,6 +65,10 @@ var Order = []struct{ Before, After, Why string }{
 	{"rescale", "params", "the depth is known only once every rescale is placed"},
 	{"params", "levels", "levels count down from the chain's top"},
 	{"levels", "keys", "keys are generated per level of use"},
+	{"lower", "output-mask", "the mask reads the lowered program's slot layout"},
+	{"output-mask", "rescale", "a mask that is a plaintext product gets its rescale placed with the others, and params counts its level"},
+	{"levels", "key-budget", "each rotation is weighted by its level's cost, and keys are sized by the chain params chose"},
+	{"key-budget", "keys", "the key set is collected from the rotations the budget leaves"},
 }
 
 // Options are the per-run settings of one compilation.
@@ -86,6 +94,9 @@ type Options struct {
 	// benchmark's yardstick: one rotation per diagonal, a rescale after
 	// every product, eager relinearization (naive.go).
 	Naive bool
+	// MaxKeyBytes bounds the evaluation keys (rotation and relinearization
+	// keys) in bytes; 0 means no bound. See keyBudget.
+	MaxKeyBytes int64
 }
 
 // Report collects what the passes decided, for plans and trace comments.
@@ -99,7 +110,9 @@ type Report struct {
 	Degrees map[string][]DegreeOption
 	// Choices are the selection's decisions, each with its runner-up.
 	Choices []Choice
-	Dumps   map[string]string
+	// Budget is what the key budget did, when Options.MaxKeyBytes is set.
+	Budget *BudgetReport
+	Dumps  map[string]string
 }
 
 // State is what passes read and write.

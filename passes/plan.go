@@ -21,6 +21,9 @@ type Plan struct {
 	Alternatives []string `json:"alternatives,omitempty"`
 	// Choices are the selection's decisions with their runner-ups.
 	Choices []Choice `json:"choices,omitempty"`
+	// Budget, under a key budget, gives the exact key set's point and the
+	// budget's (keys MB and estimated latency).
+	Budget *PlanBudget `json:"key_budget,omitempty"`
 }
 
 // PlanParams are the chosen CKKS parameters.
@@ -103,6 +106,7 @@ func MakePlan(st *State, prof *Profile) *Plan {
 	plan.Keys = PlanKeys{Rotations: p.Rotations, Relinearize: p.Relinearize, Count: keys, Bytes: int64(keys) * keyBytes(pr)}
 	plan.UploadB = ciphertextBytes(pr, pr.MaxLevel())
 	plan.DownloadB = ciphertextBytes(pr, plan.Total.LevelOut)
+	plan.Budget = planBudget(st, prof, plan)
 	return plan
 }
 

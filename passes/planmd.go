@@ -27,6 +27,10 @@ func (p *Plan) Markdown() string {
 	}
 	fmt.Fprintf(&b, "\nEvaluation keys: %d (rotations %v, relinearization %v), %.1f MB. Ciphertexts: upload %.2f MB, download %.2f MB. Estimated latency %.1f ms (profile: %s).\n",
 		p.Keys.Count, p.Keys.Rotations, p.Keys.Relinearize, float64(p.Keys.Bytes)/1e6, float64(p.UploadB)/1e6, float64(p.DownloadB)/1e6, p.EstimateMS, p.Profile)
+	if p.Budget != nil {
+		line := p.Budget.String()
+		fmt.Fprintf(&b, "\n%s%s.\n", strings.ToUpper(line[:1]), line[1:])
+	}
 	if c := p.ChoicesMarkdown(); c != "" {
 		fmt.Fprintf(&b, "\n%s", c)
 	}

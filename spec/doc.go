@@ -16,6 +16,7 @@
 //	  range: [-4, 4]            # required: every input value lies in [min, max]
 //	output:
 //	  name: risk                # optional, default "output"
+//	  mask: true                # optional: zero the result's slots that are not outputs (see below), default true
 //	precision: 20               # optional: bits of absolute precision wanted on outputs, 4..50, default 20
 //	tolerance: 0.05             # optional: default tolerance of every relu, sigmoid and tanh without degree or tolerance
 //	insecure: false             # optional: allow parameters past the 128-bit security bound, default false
@@ -48,6 +49,19 @@
 // Names (model, input and output names, layer names) are identifiers:
 // letters, digits and underscores, not starting with a digit; the model name
 // is lower case. Numbers are YAML integers or floats and must be finite.
+//
+// # Output slots
+//
+// The result ciphertext holds the outputs and, in its other slots, only
+// zeros or copies of outputs (copies that the block method of a layer with
+// few outputs leaves reveal nothing beyond the outputs). Where the last
+// layer would leave more of the model there — partial sums of a linear
+// layer, or p(0) of a final activation in padding slots — the planner
+// zeroes those slots: by subtracting p(0) where an activation's input is
+// zero, or by folding a 0/1 mask into the last layer's plaintexts, at no
+// level; otherwise by a plaintext product with the mask, which costs one
+// level. output.mask: false turns this off (the plan then says which
+// slots are left); any other value than true or false is an error.
 //
 // # Layers
 //

@@ -107,7 +107,7 @@ func TestParseErrors(t *testing.T) {
 		{"range element string", "lanthorn: 1\ninput:\n  range: [a, 2]\n", nil, []string{
 			`gearbox.yaml:3:11: input.range[0]: found string "a", expected a number`}},
 		{"output unknown key", "lanthorn: 1\noutput:\n  size: 3\n  name: risk-score\n", nil, []string{
-			`gearbox.yaml:3:3: unknown key "size" in output; expected one of: name`,
+			`gearbox.yaml:3:3: unknown key "size" in output; expected one of: name, mask`,
 			`gearbox.yaml:4:9: output.name: found string "risk-score", expected an identifier`}},
 
 		// Params.

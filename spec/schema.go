@@ -70,10 +70,15 @@ func (p *parser) v1(root *yaml.Node, f *fields) *ir.Graph {
 
 	if fl, ok := f.get("output"); ok && p.wantMapping(fl.val, "output") {
 		of := p.mapping(fl.val, "in output")
-		p.unknown(of, "in output", []string{"name"}, []string{"name"})
+		p.unknown(of, "in output", []string{"name", "mask"}, []string{"name", "mask"})
 		if n, ok := of.get("name"); ok {
 			if s, ok := p.ident(n.val, "output.name", identName, identExpect); ok {
 				g.OutputName = s
+			}
+		}
+		if n, ok := of.get("mask"); ok {
+			if mask, ok := p.boolean(n.val, "output.mask"); ok {
+				g.NoOutputMask = !mask
 			}
 		}
 	}

@@ -26,6 +26,8 @@ type programFlags struct {
 	naive  *bool
 	// objective is what the selection minimises (objective.go).
 	objective *string
+	// maxKeysMB bounds the evaluation keys (keybudget.go).
+	maxKeysMB *float64
 }
 
 func addProgramFlags(fs *flag.FlagSet) programFlags {
@@ -36,6 +38,7 @@ func addProgramFlags(fs *flag.FlagSet) programFlags {
 			"after every product, eager relinearization): the benchmark's yardstick, not for deployment;\n"+
 			"the regenerate line in the headers does not name it"),
 		objective: objectiveFlag(fs),
+		maxKeysMB: keyBudgetFlag(fs),
 	}
 }
 
@@ -64,6 +67,9 @@ func runBuild(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	popts := passes.Options{Naive: *pf.naive, Objective: obj}
+	if popts.MaxKeyBytes, err = keyBudgetBytes(*pf.maxKeysMB); err != nil {
+		return err
+	}
 	if *dump != "" {
 		popts.DumpAfter = strings.Split(*dump, ",")
 	}

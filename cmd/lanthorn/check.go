@@ -55,7 +55,11 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
-	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj})
+	budget, err := keyBudgetBytes(*pf.maxKeysMB)
+	if err != nil {
+		return &exitError{code: 2, err: err}
+	}
+	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj, MaxKeyBytes: budget})
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
@@ -72,6 +76,9 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	}
 	if obj != passes.Latency {
 		cmd += " -objective " + obj.String()
+	}
+	if budget > 0 {
+		cmd += fmt.Sprintf(" -max-keys-mb %g", *pf.maxKeysMB)
 	}
 	if len(diffs) == 0 {
 		fmt.Fprintf(stdout, "%s is up to date: its %d files are what %s writes\n", *pf.out, len(files), cmd)

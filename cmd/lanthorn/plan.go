@@ -18,8 +18,9 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	naive := fs.Bool("naive", false, "plan the naive lowering (one rotation per diagonal, a rescale after every product,\n"+
 		"eager relinearization), the benchmark's yardstick")
 	objective := objectiveFlag(fs)
+	maxKeysMB := keyBudgetFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive] [-objective latency|keys]\n\n"+
+		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive] [-objective latency|keys] [-max-keys-mb MB]\n\n"+
 			"Compiles SPEC and prints its plan: the parameters and why, a row per layer\n"+
 			"(levels, rotations, key switches, products, rescales, estimated time),\n"+
 			"totals, evaluation keys and ciphertext sizes. Writes no files.\n\nFlags:\n")
@@ -45,7 +46,11 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive, Objective: obj}, prof, obj)
+	budget, err := keyBudgetBytes(*maxKeysMB)
+	if err != nil {
+		return err
+	}
+	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive, Objective: obj, MaxKeyBytes: budget}, prof, obj)
 	if err != nil {
 		return err
 	}
@@ -90,6 +95,9 @@ func writePlanText(w io.Writer, p *passes.Plan) error {
 	fmt.Fprintf(w, "\nevaluation keys: %d (%d rotations %v, relinearization %v), %.1f MB\n", p.Keys.Count, len(p.Keys.Rotations), p.Keys.Rotations, p.Keys.Relinearize, float64(p.Keys.Bytes)/1e6)
 	fmt.Fprintf(w, "ciphertexts: upload %.2f MB, download %.2f MB\n", float64(p.UploadB)/1e6, float64(p.DownloadB)/1e6)
 	fmt.Fprintf(w, "estimated latency: %.1f ms (profile: %s)\n", p.EstimateMS, p.Profile)
+	if p.Budget != nil {
+		fmt.Fprintf(w, "%s\n", p.Budget)
+	}
 	for _, n := range p.Notes {
 		fmt.Fprintf(w, "note: %s\n", n)
 	}

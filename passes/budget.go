@@ -1,0 +1,395 @@
+package passes
+
+import (
+	"fmt"
+	"math"
+	"slices"
+
+	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/runtime"
+)
+
+// BudgetReport records what the key budget did, so that a plan can show
+// both points: the exact key set and the set the budget allows.
+type BudgetReport struct {
+	LimitBytes int64
+	// Exact is the program with the exact key set, before any rotation was
+	// composed; it shares values with the final program and is only read
+	// (MakePlan prices it).
+	Exact *ir.Program
+	// ExactSteps is the exact rotation set; Steps the set kept (equal when
+	// the exact set fits).
+	ExactSteps, Steps []int
+	// Composed counts the rotations rewritten as chains, Added the key
+	// switches the chains add.
+	Composed, Added int
+}
+
+// keyBudget bounds the evaluation keys at Options.MaxKeyBytes. When the
+// exact rotation set (plus the relinearization key) is larger, it keeps a
+// smaller set S of rotation keys and composes every other rotation from
+// them: the vectors are periodic in the layout's period D, so a rotation by
+// k is a chain of rotations by keys of S whose steps sum to k mod D. S is
+// chosen to minimise the estimated time of the chains, each rotation
+// weighted by the cost of a key switch at its level (default profile):
+// greedily, a key at a time from the used steps and the powers of two
+// either way, then by exchanging a key for another while that helps. The
+// chains are shortest paths in Z_D (breadth first over S); a hoisted batch
+// whose steps are not all keys becomes one hoisted rotation by the first
+// key step of each chain, followed by the rest of the chains, sharing
+// common prefixes.
+//
+// Keys are generated at the top level: the runtime has no keys restricted
+// to the level of use, so each costs keyBytes.
+func keyBudget(s *State) error {
+	limit := s.Opts.MaxKeyBytes
+	if limit <= 0 {
+		return nil
+	}
+	p := s.Prog
+	per := keyBytes(p.Params)
+	steps := usedSteps(p)
+	fixed := 0
+	if needsRelinKey(p) {
+		fixed = 1
+	}
+	exact := snapshot(p)
+	rep := &BudgetReport{LimitBytes: limit, Exact: exact, ExactSteps: steps, Steps: steps}
+	s.Report.Budget = rep
+	mb := func(b int64) float64 { return float64(b) / 1e6 }
+	if int64(len(steps)+fixed)*per <= limit {
+		s.note("key budget %.1f MB: the exact set of %d keys (%.1f MB) fits", mb(limit), len(steps)+fixed, mb(int64(len(steps)+fixed)*per))
+		return nil
+	}
+	least := fixed
+	if len(steps) > 0 {
+		least++
+	}
+	room := int(limit/per) - fixed
+	if room < 1 {
+		return fmt.Errorf("%s: key budget %.1f MB is below the smallest key set this program can use, %.1f MB (%d keys of %.2f MB each at logN %d with %d ciphertext and %d key-switching primes: %s)",
+			s.Graph.SpecFile, mb(limit), mb(int64(least)*per), least, mb(per), p.Params.LogN, len(p.Params.LogQ), len(p.Params.LogP), leastKeys(fixed, len(steps)))
+	}
+	uses := rotationUses(p)
+	prof := DefaultProfile()
+	g := newStepGraph(p.Period)
+	cost := func(set []int) float64 { return g.cost(set, uses, prof, p.Params.LogN) }
+	keys := chooseKeys(steps, room, p.Period, cost)
+	g.search(keys)
+	rep.Steps = keys
+	added := composeRotations(p, g, uses, rep)
+	rep.Added = added
+	est := func(set []int) float64 { return cost(set) / 1e6 }
+	s.note("key budget %.1f MB: %d rotation keys %v instead of %d (%.1f MB instead of %.1f MB); %d rotations composed from them, %d key switches more, about %.1f ms more (estimated)",
+		mb(limit), len(keys), keys, len(steps), mb(int64(len(keys)+fixed)*per), mb(int64(len(steps)+fixed)*per), rep.Composed, added, est(keys)-est(steps))
+	return nil
+}
+
+func leastKeys(fixed, steps int) string {
+	switch {
+	case fixed == 1 && steps > 0:
+		return "the relinearization key and one rotation key"
+	case fixed == 1:
+		return "the relinearization key"
+	default:
+		return "one rotation key"
+	}
+}
+
+// usedSteps is the sorted set of rotation steps the program uses.
+func usedSteps(p *ir.Program) []int {
+	var out []int
+	for _, op := range p.Ops {
+		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
+			out = append(out, op.Steps...)
+		}
+	}
+	slices.Sort(out)
+	return slices.Compact(out)
+}
+
+// needsRelinKey reports whether the program multiplies ciphertexts.
+func needsRelinKey(p *ir.Program) bool {
+	for _, op := range p.Ops {
+		if op.Kind == ir.OpMul || op.Kind == ir.OpPoly {
+			return true
+		}
+	}
+	return false
+}
+
+// snapshot copies the program's op list and layer records, so that a later
+// rewrite that replaces ops (never edits them) leaves the copy intact.
+func snapshot(p *ir.Program) *ir.Program {
+	c := *p
+	c.Ops = slices.Clone(p.Ops)
+	c.Layers = make([]*ir.LayerInfo, len(p.Layers))
+	for i, l := range p.Layers {
+		lc := *l
+		c.Layers[i] = &lc
+	}
+	return &c
+}
+
+// rotationUse is one rotation op: its position, steps and level.
+type rotationUse struct {
+	op      int // index into Program.Ops
+	steps   []int
+	level   int
+	hoisted bool
+}
+
+func rotationUses(p *ir.Program) []rotationUse {
+	var out []rotationUse
+	for i, op := range p.Ops {
+		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
+			out = append(out, rotationUse{op: i, steps: op.Steps, level: p.Values[op.Args[0]].Level, hoisted: op.Kind == ir.OpRotHoisted})
+		}
+	}
+	return out
+}
+
+// stepGraph finds shortest chains of key steps in Z_D. The breadth-first
+// search is deterministic: keys are tried in ascending order and the first
+// path found to a step is kept.
+type stepGraph struct {
+	D      int
+	dist   []int // hops from 0; -1 unreachable
+	parent []int // node before, on the kept path
+	via    []int // key step from parent
+	queue  []int
+}
+
+func newStepGraph(D int) *stepGraph {
+	return &stepGraph{D: D, dist: make([]int, D), parent: make([]int, D), via: make([]int, D), queue: make([]int, 0, D)}
+}
+
+func (g *stepGraph) search(keys []int) {
+	for i := range g.dist {
+		g.dist[i] = -1
+	}
+	g.dist[0] = 0
+	g.queue = append(g.queue[:0], 0)
+	for h := 0; h < len(g.queue); h++ {
+		u := g.queue[h]
+		for _, k := range keys {
+			v := (u + k) % g.D
+			if g.dist[v] < 0 {
+				g.dist[v], g.parent[v], g.via[v] = g.dist[u]+1, u, k
+				g.queue = append(g.queue, v)
+			}
+		}
+	}
+}
+
+// path returns the nodes from 0 (excluded) to k on the kept path.
+func (g *stepGraph) path(k int) []int {
+	var nodes []int
+	for v := k; v != 0; v = g.parent[v] {
+		nodes = append(nodes, v)
+	}
+	slices.Reverse(nodes)
+	return nodes
+}
+
+// unreachablePenalty prices a step the keys cannot reach as this many
+// rotations, more than any chain, so the greedy choice first reaches all.
+func (g *stepGraph) unreachablePenalty() int { return 2 * g.D }
+
+// cost is the estimated time in nanoseconds of every rotation of the
+// program when its steps are chains of the given keys: a plain rotation
+// costs one key switch per hop; a hoisted batch costs a hoisted rotation
+// per distinct first hop plus one key switch per other distinct node of
+// its chains. With the exact set it is the program's own rotation cost.
+func (g *stepGraph) cost(keys []int, uses []rotationUse, prof *Profile, logN int) float64 {
+	g.search(keys)
+	var total float64
+	seen := map[int]bool{}
+	for _, u := range uses {
+		rot := prof.Cost(CostRotate, logN, u.level)
+		if !u.hoisted {
+			d := g.dist[u.steps[0]]
+			if d < 0 {
+				d = g.unreachablePenalty()
+			}
+			total += float64(d) * rot
+			continue
+		}
+		clear(seen)
+		first, deeper := 0, 0
+		for _, k := range u.steps {
+			if g.dist[k] < 0 {
+				deeper += g.unreachablePenalty()
+				continue
+			}
+			for _, v := range g.path(k) {
+				if seen[v] {
+					continue
+				}
+				seen[v] = true
+				if g.dist[v] == 1 {
+					first++
+				} else {
+					deeper++
+				}
+			}
+		}
+		total += prof.Cost(CostHoisted, logN, u.level)*float64(first)/runtime.HoistedSteps + float64(deeper)*rot
+	}
+	return total
+}
+
+// chooseKeys picks at most room keys among the used steps and the powers of
+// two in either direction, minimising cost: greedily, then by single
+// exchanges until none helps (a few rounds at most). Keys are returned in
+// ascending order.
+func chooseKeys(steps []int, room, D int, cost func([]int) float64) []int {
+	cands := slices.Clone(steps)
+	for k := 1; k < D; k *= 2 {
+		cands = append(cands, k, D-k)
+	}
+	slices.Sort(cands)
+	cands = slices.Compact(cands)
+	with := func(set []int, k int) []int {
+		out := append(slices.Clone(set), k)
+		slices.Sort(out)
+		return out
+	}
+	var set []int
+	best := math.Inf(1)
+	for len(set) < room {
+		pick, pickCost := -1, best
+		for _, c := range cands {
+			if slices.Contains(set, c) {
+				continue
+			}
+			if v := cost(with(set, c)); v < pickCost {
+				pick, pickCost = c, v
+			}
+		}
+		if pick < 0 {
+			break // no key lowers the cost
+		}
+		set, best = with(set, pick), pickCost
+	}
+	const rounds = 3
+	for range rounds {
+		improved := false
+		for i := 0; i < len(set); i++ {
+			for _, c := range cands {
+				if slices.Contains(set, c) {
+					continue
+				}
+				trial := with(slices.Delete(slices.Clone(set), i, i+1), c)
+				if v := cost(trial); v < best {
+					set, best, improved = trial, v, true
+					break
+				}
+			}
+		}
+		if !improved {
+			break
+		}
+	}
+	return set
+}
+
+// composeRotations rewrites every rotation whose step is not a key as a
+// chain over g's paths (g must hold the search for the chosen keys) and
+// returns the number of key switches added. Ops are replaced, never edited,
+// so the exact snapshot stays valid.
+func composeRotations(p *ir.Program, g *stepGraph, uses []rotationUse, rep *BudgetReport) int {
+	added := 0
+	replace := map[int][]*ir.Op{}
+	for _, u := range uses {
+		op := p.Ops[u.op]
+		if !slices.ContainsFunc(u.steps, func(k int) bool { return g.dist[k] != 1 }) {
+			continue // every step is a key (a key is one hop from 0)
+		}
+		src := op.Args[0]
+		info := p.Layers[op.Layer]
+		// Nodes of the chains in order of first appearance; a node that is
+		// one of the op's steps keeps that step's result value.
+		result := map[int]ir.ValueID{}
+		for i, k := range u.steps {
+			result[k] = op.Results[i]
+		}
+		value := map[int]ir.ValueID{0: src}
+		var order []int
+		for _, k := range u.steps {
+			for _, v := range g.path(k) {
+				if _, ok := value[v]; ok {
+					continue
+				}
+				if r, ok := result[v]; ok {
+					value[v] = r
+				} else {
+					value[v] = newLike(p, op.Results[0], fmt.Sprintf("Via%d", v))
+				}
+				order = append(order, v)
+			}
+			if g.dist[k] > 1 {
+				rep.Composed++
+			}
+		}
+		var ops []*ir.Op
+		var first []int
+		for _, v := range order {
+			if g.dist[v] == 1 {
+				first = append(first, v)
+			}
+		}
+		if u.hoisted {
+			h := &ir.Op{Kind: ir.OpRotHoisted, Args: []ir.ValueID{src}, Steps: first, Const: -1, Layer: op.Layer}
+			for _, v := range first {
+				h.Results = append(h.Results, value[v])
+			}
+			ops = append(ops, h)
+		} else {
+			for _, v := range first {
+				ops = append(ops, &ir.Op{Kind: ir.OpRotate, Args: []ir.ValueID{src}, Results: []ir.ValueID{value[v]}, Steps: []int{v}, Const: -1, Layer: op.Layer})
+			}
+		}
+		// Deeper nodes by depth, so that each parent comes first.
+		deeper := slices.DeleteFunc(slices.Clone(order), func(v int) bool { return g.dist[v] == 1 })
+		slices.SortStableFunc(deeper, func(a, b int) int { return g.dist[a] - g.dist[b] })
+		for _, v := range deeper {
+			ops = append(ops, &ir.Op{Kind: ir.OpRotate, Args: []ir.ValueID{value[g.parent[v]]}, Results: []ir.ValueID{value[v]}, Steps: []int{g.via[v]}, Const: -1, Layer: op.Layer})
+		}
+		before := len(u.steps)
+		if u.hoisted {
+			if before > 1 {
+				info.Hoisted -= before
+			}
+			if len(first) > 1 {
+				info.Hoisted += len(first)
+			}
+		}
+		info.Rotations += len(first) + len(deeper) - before
+		added += len(first) + len(deeper) - before
+		replace[u.op] = ops
+	}
+	if len(replace) == 0 {
+		return 0
+	}
+	var out []*ir.Op
+	for i, op := range p.Ops {
+		if r, ok := replace[i]; ok {
+			out = append(out, r...)
+		} else {
+			out = append(out, op)
+		}
+	}
+	p.Ops = out
+	return added
+}
+
+// newLike adds a ciphertext value with the level, scale, degree and layer
+// of v, named after it.
+func newLike(p *ir.Program, v ir.ValueID, suffix string) ir.ValueID {
+	old := p.Values[v]
+	id := p.NewValue(old.Name+suffix, ir.Cipher, old.Layer)
+	nv := p.Values[id]
+	nv.Level, nv.Scale, nv.Degree = old.Level, old.Scale, old.Degree
+	return id
+}

@@ -1,0 +1,221 @@
+package passes
+
+import (
+	"fmt"
+	"path/filepath"
+	"slices"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/spec"
+)
+
+// budgetSpecs are the testdata specs the key budget is checked on.
+func budgetSpecs(t *testing.T) []string {
+	specs, err := filepath.Glob("../testdata/models/*.yaml")
+	require.NoError(t, err)
+	return append(specs, "../testdata/demo/gearbox.yaml", "../testdata/mnist/digits.yaml")
+}
+
+// keyCount is the number of evaluation keys a compiled program needs.
+func keyCount(p *ir.Program) int {
+	n := len(p.Rotations)
+	if p.Relinearize {
+		n++
+	}
+	return n
+}
+
+// Under a tight budget (room for about a third of the exact rotation keys,
+// at least one) every testdata program still agrees exactly with the
+// float64 reference in simulation, passes the verifier after every pass
+// (Compile runs it), and needs no more key bytes than the budget.
+func TestBudgetTestdata(t *testing.T) {
+	for _, path := range budgetSpecs(t) {
+		t.Run(filepath.Base(path), func(t *testing.T) {
+			g, err := spec.Load(path)
+			require.NoError(t, err)
+			exact, st, err := Compile(g, Options{})
+			require.NoError(t, err)
+			per := keyBytes(exact.Params)
+			if len(exact.Rotations) < 2 {
+				t.Skipf("%d rotation keys: nothing to compose", len(exact.Rotations))
+			}
+			fixed := keyCount(exact) - len(exact.Rotations)
+			room := max(1, len(exact.Rotations)/3)
+			limit := int64(room+fixed)*per + per/2
+			prog, bst, err := Compile(g, Options{MaxKeyBytes: limit})
+			require.NoError(t, err)
+			require.LessOrEqual(t, len(prog.Rotations), room)
+			require.LessOrEqual(t, int64(keyCount(prog))*keyBytes(prog.Params), limit, "the budget is respected")
+			rep := bst.Report.Budget
+			require.NotNil(t, rep)
+			require.Equal(t, exact.Rotations, rep.ExactSteps)
+			require.Equal(t, prog.Rotations, rep.Steps)
+			require.Positive(t, rep.Composed)
+			require.Equal(t, rotationCount(prog)-rotationCount(exact), rep.Added)
+			for k := range 3 {
+				x := randomInput(uint64(40+k), g.Input.Size)
+				for i := range x {
+					x[i] = g.Input.Min + (x[i]+1)/2*(g.Input.Max-g.Input.Min)
+				}
+				want, err := st.Model.Reference(x)
+				require.NoError(t, err)
+				got, err := prog.Simulate(x)
+				require.NoError(t, err)
+				require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
+			}
+			// The exact snapshot still prices as the unbudgeted program.
+			prof := DefaultProfile()
+			require.InDelta(t, EstimateProgram(exact, prof).TotalMS, EstimateProgram(rep.Exact, prof).TotalMS, 1e-9)
+			require.Greater(t, EstimateProgram(prog, prof).TotalMS, EstimateProgram(exact, prof).TotalMS)
+		})
+	}
+}
+
+func rotationCount(p *ir.Program) int {
+	n := 0
+	for _, op := range p.Ops {
+		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
+			n += len(op.Steps)
+		}
+	}
+	return n
+}
+
+// A budget that holds the exact set changes nothing; one below the
+// smallest usable set is an error that names that size.
+func TestBudgetFitsOrRefuses(t *testing.T) {
+	g, err := spec.Load("../testdata/demo/gearbox.yaml")
+	require.NoError(t, err)
+	exact, _, err := Compile(g, Options{})
+	require.NoError(t, err)
+	per := keyBytes(exact.Params)
+	all := int64(keyCount(exact)) * per
+	prog, st, err := Compile(g, Options{MaxKeyBytes: all})
+	require.NoError(t, err)
+	require.Equal(t, exact.Rotations, prog.Rotations)
+	require.Equal(t, len(exact.Ops), len(prog.Ops))
+	require.Zero(t, st.Report.Budget.Added)
+
+	least := int64(keyCount(exact)-len(exact.Rotations)+1) * per
+	_, _, err = Compile(g, Options{MaxKeyBytes: least - 1})
+	require.Error(t, err)
+	require.Contains(t, err.Error(), fmt.Sprintf("smallest key set this program can use, %.1f MB", float64(least)/1e6))
+	_, _, err = Compile(g, Options{MaxKeyBytes: least})
+	require.NoError(t, err, "the smallest size named is achievable")
+}
+
+// Chains are shortest in Z_D: with keys {1, 4} in period 16, 6 = 4+1+1 is
+// three hops and 15 = 4·3+1·3 … or 4+4+4+1+1+1 is six; 3 is three ones.
+// Hop counts are checked against a brute-force count of key multisets
+// (common practice: breadth-first search gives shortest paths).
+func TestStepGraphShortestChains(t *testing.T) {
+	cases := []struct {
+		D    int
+		keys []int
+	}{
+		{16, []int{1, 4}},
+		{16, []int{3}},
+		{64, []int{1, 8, 60}},
+		{32, []int{2, 16}}, // odd steps unreachable
+	}
+	for _, c := range cases {
+		t.Run(fmt.Sprint(c.D, c.keys), func(t *testing.T) {
+			g := newStepGraph(c.D)
+			g.search(c.keys)
+			brute := bruteHops(c.D, c.keys)
+			for k := 1; k < c.D; k++ {
+				require.Equal(t, brute[k], g.dist[k], "step %d", k)
+				if g.dist[k] < 0 {
+					continue
+				}
+				sum := 0
+				for _, v := range g.path(k) {
+					require.Contains(t, c.keys, g.via[v])
+					sum += g.via[v]
+				}
+				require.Equal(t, k, sum%c.D)
+			}
+		})
+	}
+}
+
+// bruteHops counts, for each step, the fewest keys (with repetition) that
+// sum to it mod D, by trying every count vector up to D keys of each.
+func bruteHops(D int, keys []int) []int {
+	best := make([]int, D)
+	for i := range best {
+		best[i] = -1
+	}
+	best[0] = 0
+	var rec func(i, sum, n int)
+	rec = func(i, sum, n int) {
+		if i == len(keys) {
+			if best[sum] < 0 || n < best[sum] {
+				best[sum] = n
+			}
+			return
+		}
+		for c := 0; c < D; c++ {
+			rec(i+1, (sum+c*keys[i])%D, n+c)
+		}
+	}
+	rec(0, 0, 0)
+	return best
+}
+
+// A hoisted batch whose steps are not all keys becomes one hoisted
+// rotation by the first hop of each chain and the rest of the chains,
+// sharing prefixes; the simulation is unchanged.
+func TestComposeHoistedBatch(t *testing.T) {
+	p := &ir.Program{Name: "h", InputSize: 8, OutputSize: 8, Period: 16,
+		Input: ir.PackedLayout(8, 16, 16), Output: ir.PackedLayout(8, 16, 16)}
+	x := p.NewValue("x", ir.Cipher, -1)
+	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpInput, Results: []ir.ValueID{x}, Const: -1, Layer: -1})
+	steps := []int{1, 5, 6, 9}
+	h := &ir.Op{Kind: ir.OpRotHoisted, Args: []ir.ValueID{x}, Steps: steps, Const: -1}
+	for _, s := range steps {
+		h.Results = append(h.Results, p.NewValue(fmt.Sprintf("r%d", s), ir.Cipher, 0))
+	}
+	p.Ops = append(p.Ops, h)
+	sum := x
+	for _, r := range h.Results {
+		v := p.NewValue("s", ir.Cipher, 0)
+		p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpAdd, Args: []ir.ValueID{sum, r}, Results: []ir.ValueID{v}, Const: -1})
+		sum = v
+	}
+	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpOutput, Args: []ir.ValueID{sum}, Const: -1})
+	p.Layers = []*ir.LayerInfo{{Name: "l", Rotations: 4, Hoisted: 4}}
+	x0 := randomInput(3, 8)
+	want, err := p.Simulate(x0)
+	require.NoError(t, err)
+
+	keys := []int{1, 4}
+	g := newStepGraph(p.Period)
+	g.search(keys)
+	rep := &BudgetReport{ExactSteps: steps}
+	added := composeRotations(p, g, rotationUses(p), rep)
+	require.NoError(t, ir.VerifyProgram(p, ir.Lowered))
+	got, err := p.Simulate(x0)
+	require.NoError(t, err)
+	require.Equal(t, want, got)
+	// Breadth first from 0 with keys 1, 4: 5 = 1+4, 6 = 2+4 (2 = 1+1),
+	// 9 = 5+4, so the nodes are 1, 5, 2, 6, 9 with one first hop: one
+	// hoisted rotation and four chained, five rotations for four.
+	require.Equal(t, 1, added)
+	require.Equal(t, 3, rep.Composed)
+	var hoisted []int
+	for _, op := range p.Ops {
+		if op.Kind == ir.OpRotHoisted {
+			hoisted = append(hoisted, op.Steps...)
+		}
+		if op.Kind == ir.OpRotate {
+			require.True(t, slices.Contains(keys, op.Steps[0]))
+		}
+	}
+	require.Equal(t, []int{1}, hoisted)
+	require.Equal(t, 5, p.Layers[0].Rotations)
+}
