@@ -32,6 +32,7 @@ var (
 	opReps     = flag.Int("op-reps", 5, "runs of each primitive in the measurement that prices the lower bound (the median is kept)")
 	onlyModels = flag.String("models", "", "comma-separated model names to run, e.g. demo/gearbox,mnist/digits (default: all)")
 	timeout    = flag.Duration("program-timeout", 10*time.Minute, "limit on one program's bench command")
+	threadList = flag.String("threads", "", "comma-separated thread counts the optimised programs run with (default: 1 and GOMAXPROCS); the naive ones run with the last")
 )
 
 // repoRoot is the repository root, relative to this package.
@@ -47,11 +48,15 @@ func BenchmarkModels(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
+	threads, err := parseThreads(*threadList)
+	if err != nil {
+		b.Fatal(err)
+	}
 	for range b.N {
 		start := time.Now()
 		var rows []modelRow
 		for _, m := range ms {
-			row, err := benchModel(b, m)
+			row, err := benchModel(b, m, threads)
 			if err != nil {
 				b.Fatalf("%s: %v", m.name, err)
 			}
@@ -121,9 +126,11 @@ type benchResult struct {
 	KeygenMS float64 `json:"keygen_ms"`
 }
 
-// variantRow is one program of a model: measured, or why not.
+// variantRow is one program of a model at one thread count: measured, or
+// why not.
 type variantRow struct {
 	variant  string // "optimised" or "naive"
+	threads  int    // as asked for with -threads
 	plan     *passes.Plan
 	result   *benchResult // nil when not measured
 	skipped  string       // why it was not measured
@@ -132,14 +139,15 @@ type variantRow struct {
 
 // modelRow is one model's rows of the table.
 type modelRow struct {
-	name       string
-	opt, naive variantRow
-	bound      *passes.Bound // of the optimised program, priced with the measured primitives
-	boundErr   error
-	ops        string // the measured primitives, in brief
+	name     string
+	opt      []variantRow  // one per thread count
+	naive    variantRow    // at the last thread count
+	bound    *passes.Bound // of the optimised program, priced with the measured primitives
+	boundErr error
+	ops      string // the measured primitives, in brief
 }
 
-func benchModel(b *testing.B, m model) (modelRow, error) {
+func benchModel(b *testing.B, m model, threads []int) (modelRow, error) {
 	row := modelRow{name: m.name}
 	path := filepath.Join(repoRoot, filepath.FromSlash(m.spec))
 	g, inputs, err := spec.LoadWithFiles(path)
@@ -162,24 +170,33 @@ func benchModel(b *testing.B, m model) (modelRow, error) {
 		return row, fmt.Errorf("build -naive: %w", err)
 	}
 	ref := passes.DefaultProfile()
-	row.opt = variantRow{variant: "optimised", plan: passes.MakePlan(optSt, ref)}
-	row.naive = variantRow{variant: "naive", plan: passes.MakePlan(naiveSt, ref)}
-	row.opt.planKeys = float64(row.opt.plan.Keys.Bytes) / 1e6
-	row.naive.planKeys = float64(row.naive.plan.Keys.Bytes) / 1e6
-
-	// The lower bound, priced with primitives measured now, at the
-	// optimised program's own parameters.
-	prof, ops, err := measure(optSt.Prog.Params)
-	if err != nil {
-		row.boundErr = err
-	} else {
-		row.ops = ops
-		row.bound, row.boundErr = passes.LowerBound(optSt.Prog, prof)
+	optPlan, naivePlan := passes.MakePlan(optSt, ref), passes.MakePlan(naiveSt, ref)
+	for _, t := range threads {
+		row.opt = append(row.opt, variantRow{variant: "optimised", threads: t, plan: optPlan, planKeys: float64(optPlan.Keys.Bytes) / 1e6})
 	}
+	row.naive = variantRow{variant: "naive", threads: threads[len(threads)-1], plan: naivePlan, planKeys: float64(naivePlan.Keys.Bytes) / 1e6}
 
-	if row.opt.result, err = buildAndRun(b, optFiles, optSt.Prog.Name, *runs); err != nil {
+	// The primitives that price the lower bound are measured at the
+	// optimised program's own parameters just before and just after its
+	// runs (see priceBound).
+	before, measureErr := measureOps(optSt.Prog.Params)
+
+	bin, err := buildProgram(b, optFiles, optSt.Prog.Name)
+	if err != nil {
 		return row, fmt.Errorf("optimised program: %w", err)
 	}
+	for i := range row.opt {
+		if row.opt[i].result, err = runBench(bin, *runs, row.opt[i].threads); err != nil {
+			return row, fmt.Errorf("optimised program: %w", err)
+		}
+	}
+	if measureErr == nil {
+		var after []runtime.OpTiming
+		if after, measureErr = measureOps(optSt.Prog.Params); measureErr == nil {
+			row.bound, row.ops, measureErr = priceBound(optSt.Prog, before, after)
+		}
+	}
+	row.boundErr = measureErr
 	switch {
 	case row.naive.planKeys > *keyBudget:
 		row.naive.skipped = fmt.Sprintf("not measured: its %d evaluation keys take %.0f MB by the plan, above the %.0f MB budget (-key-budget-mb)",
@@ -189,73 +206,118 @@ func benchModel(b *testing.B, m model) (modelRow, error) {
 		if row.naive.plan.EstimateMS > *slowMS {
 			n = 1
 		}
-		if row.naive.result, err = buildAndRun(b, naiveFiles, naiveSt.Prog.Name, n); err != nil {
+		bin, err := buildProgram(b, naiveFiles, naiveSt.Prog.Name)
+		if err == nil {
+			row.naive.result, err = runBench(bin, n, row.naive.threads)
+		}
+		if err != nil {
 			return row, fmt.Errorf("naive program: %w", err)
 		}
 	}
 	return row, nil
 }
 
-// measure times the primitives with lattigo at the ring degree and
-// modulus chain of the program, at the first, middle and top level, and
-// fits a profile to them.
-func measure(pr ir.Params) (*passes.Profile, string, error) {
+// measureOps times the primitives with lattigo at the ring degree and
+// modulus chain of a program, at the first, middle and top level.
+func measureOps(pr ir.Params) ([]runtime.OpTiming, error) {
 	top := len(pr.LogQ) - 1
 	if top < 2 {
-		return nil, "", fmt.Errorf("measure: %d levels; the profile needs two levels from 1 up", top)
+		return nil, fmt.Errorf("measure: %d levels; the profile needs two levels from 1 up", top)
 	}
-	levels := slices.Compact([]int{1, (top + 1) / 2, top})
-	ts, err := runtime.MeasureOps(pr.LogN, pr.LogQ, pr.LogP, levels, *opReps)
+	return runtime.MeasureOps(pr.LogN, pr.LogQ, pr.LogP, slices.Compact([]int{1, (top + 1) / 2, top}), *opReps)
+}
+
+// priceBound prices the lower bound of a program with the primitives
+// measured before and after its runs: each primitive at each level takes
+// the smaller of the two medians, the one less disturbed by whatever else
+// the shared machine was doing. It also returns the top level's timings in
+// brief.
+func priceBound(p *ir.Program, before, after []runtime.OpTiming) (*passes.Bound, string, error) {
+	if len(before) != len(after) {
+		return nil, "", fmt.Errorf("measure: %d levels before the runs, %d after", len(before), len(after))
+	}
+	ts := make([]runtime.OpTiming, len(before))
+	for i, a := range before {
+		b := after[i]
+		ts[i] = runtime.OpTiming{LogN: a.LogN, Level: a.Level,
+			Add: min(a.Add, b.Add), MulPlain: min(a.MulPlain, b.MulPlain), MulRelin: min(a.MulRelin, b.MulRelin),
+			Rescale: min(a.Rescale, b.Rescale), Rotate: min(a.Rotate, b.Rotate), Hoisted: min(a.Hoisted, b.Hoisted), Encode: min(a.Encode, b.Encode)}
+	}
+	prof, err := passes.FitProfile(fmt.Sprintf("this run (logN %d)", p.Params.LogN), ts)
 	if err != nil {
 		return nil, "", err
 	}
-	prof, err := passes.FitProfile(fmt.Sprintf("this run (logN %d)", pr.LogN), ts)
+	bound, err := passes.LowerBound(p, prof)
 	if err != nil {
 		return nil, "", err
 	}
 	t := ts[len(ts)-1]
 	brief := fmt.Sprintf("logN %d level %d: rotation %.1f ms, 4 hoisted %.1f ms, ct product+relin %.1f ms, pt product %.2f ms, rescale %.2f ms",
-		pr.LogN, t.Level, t.Rotate/1e6, t.Hoisted/1e6, t.MulRelin/1e6, t.MulPlain/1e6, t.Rescale/1e6)
-	return prof, brief, nil
+		p.Params.LogN, t.Level, t.Rotate/1e6, t.Hoisted/1e6, t.MulRelin/1e6, t.MulPlain/1e6, t.Rescale/1e6)
+	return bound, brief, nil
 }
 
-// buildAndRun writes a program into a fresh folder outside the
-// repository, builds it as a user would (no workspace, module cache only,
-// read-only go.mod) and runs its bench command.
-func buildAndRun(b *testing.B, files emit.Files, name string, n int) (*benchResult, error) {
+// buildProgram writes a program into a fresh folder outside the
+// repository and builds it as a user would (no workspace, module cache
+// only, read-only go.mod); it returns the binary.
+func buildProgram(b *testing.B, files emit.Files, name string) (string, error) {
 	dir := b.TempDir()
 	for _, p := range files.Paths() {
 		dst := filepath.Join(dir, filepath.FromSlash(p))
 		if err := os.MkdirAll(filepath.Dir(dst), 0o755); err != nil {
-			return nil, err
+			return "", err
 		}
 		if err := os.WriteFile(dst, files[p], 0o644); err != nil {
-			return nil, err
+			return "", err
 		}
 	}
 	bin := filepath.Join(dir, "bin", name)
 	cmd := exec.Command("go", "build", "-o", bin, "./cmd/"+name)
 	cmd.Dir, cmd.Env = dir, goEnv()
 	if out, err := cmd.CombinedOutput(); err != nil {
-		return nil, fmt.Errorf("go build: %w\n%s", err, out)
+		return "", fmt.Errorf("go build: %w\n%s", err, out)
 	}
+	return bin, nil
+}
+
+// runBench runs a program's bench command: n timed evaluations on the
+// given number of threads, keys made in memory.
+func runBench(bin string, n, threads int) (*benchResult, error) {
 	ctx, cancel := context.WithTimeout(context.Background(), *timeout)
 	defer cancel()
 	var stdout, stderr bytes.Buffer
-	cmd = exec.CommandContext(ctx, bin, "bench", "-json", "-n", strconv.Itoa(n))
-	cmd.Dir, cmd.Stdout, cmd.Stderr = dir, &stdout, &stderr
+	cmd := exec.CommandContext(ctx, bin, "bench", "-json", "-n", strconv.Itoa(n), "-threads", strconv.Itoa(threads))
+	cmd.Dir, cmd.Stdout, cmd.Stderr = filepath.Dir(bin), &stdout, &stderr
+	name := filepath.Base(bin)
 	if err := cmd.Run(); err != nil {
 		return nil, fmt.Errorf("%s bench: %w\nstderr:\n%s", name, err, stderr.String())
 	}
 	var r benchResult
-	dec := json.NewDecoder(&stdout)
-	if err := dec.Decode(&r); err != nil {
+	if err := json.NewDecoder(&stdout).Decode(&r); err != nil {
 		return nil, fmt.Errorf("%s bench -json: %w; output:\n%s", name, err, stdout.String())
 	}
-	if r.Runs != n || r.MedianMS <= 0 {
-		return nil, fmt.Errorf("%s bench -json: %d runs, median %g ms; want %d runs and a positive median", name, r.Runs, r.MedianMS, n)
+	if r.Runs != n || r.MedianMS <= 0 || r.Threads != threads {
+		return nil, fmt.Errorf("%s bench -json: %d runs on %d threads, median %g ms; want %d runs on %d threads and a positive median",
+			name, r.Runs, r.Threads, r.MedianMS, n, threads)
 	}
 	return &r, nil
+}
+
+// parseThreads reads -threads: a list of thread counts, each at least 1;
+// empty means 1 and GOMAXPROCS.
+func parseThreads(s string) ([]int, error) {
+	if s == "" {
+		return slices.Compact([]int{1, goruntime.GOMAXPROCS(0)}), nil
+	}
+	var out []int
+	for _, f := range strings.Split(s, ",") {
+		t, err := strconv.Atoi(strings.TrimSpace(f))
+		if err != nil || t < 1 {
+			return nil, fmt.Errorf("-threads %q: want thread counts of at least 1, comma-separated", s)
+		}
+		out = append(out, t)
+	}
+	return out, nil
 }
 
 // goEnv is the environment of a user's go command: this one's without Go
@@ -276,15 +338,16 @@ func goEnv() []string {
 }
 
 // reportGeomeans reports the geometric means of the ratios over the models
-// where both sides were measured, for benchstat.
+// where both sides were measured, at the last thread count, for benchstat.
 func reportGeomeans(b *testing.B, rows []modelRow) {
 	var vsNaive, vsBound []float64
 	for _, r := range rows {
-		if o, n := r.opt.result, r.naive.result; o != nil && n != nil {
-			vsNaive = append(vsNaive, o.MedianMS/n.MedianMS)
+		o := r.opt[len(r.opt)-1] // at the naive program's thread count
+		if o.result != nil && r.naive.result != nil {
+			vsNaive = append(vsNaive, o.result.MedianMS/r.naive.result.MedianMS)
 		}
-		if r.opt.result != nil && r.bound != nil {
-			vsBound = append(vsBound, r.opt.result.MedianMS/boundMS(r))
+		if o.result != nil && r.bound != nil {
+			vsBound = append(vsBound, o.result.MedianMS/boundMS(r.bound, o.threads))
 		}
 	}
 	if len(vsNaive) > 0 {
@@ -303,12 +366,6 @@ func geomean(v []float64) float64 {
 	return math.Exp(s / float64(len(v)))
 }
 
-// boundMS is the lower bound for the optimised program's thread count: the
-// work priced at one thread divided by the threads (perfect parallelism).
-func boundMS(r modelRow) float64 {
-	t := 1
-	if r.opt.result != nil && r.opt.result.Threads > 1 {
-		t = r.opt.result.Threads
-	}
-	return r.bound.MS / float64(t)
-}
+// boundMS is the lower bound at a thread count: the work priced at one
+// thread divided by the threads (perfect parallelism).
+func boundMS(b *passes.Bound, threads int) float64 { return b.MS / float64(max(threads, 1)) }
