@@ -27,7 +27,7 @@ func (e *emitter) readme() []byte {
 	}
 	w("- **Never reveal decrypted results to the party that evaluated.** Decrypted CKKS values carry noise that depends on the secret key; handing them back to the server can let it recover the key (Li and Micciancio, 2021). If a result must be shared, share a value rounded to the precision you need (`decrypt -round`), never the raw decryption.\n")
 	w("- **Not audited.** Neither lanthorn nor this program has been reviewed by a cryptographer. Defer to a qualified cryptographer before protecting real data.\n")
-	w("- The secret key file is written with mode 0600 and only the client commands (`keygen`, `encrypt`, `decrypt`, `selftest`) read it; `eval` reads only the evaluation keys.\n\n")
+	w("- The secret key file is written with mode 0600 and only the client commands (`keygen`, `encrypt`, `decrypt`, `selftest`, `bench`) read it; `eval` reads only the evaluation keys.\n\n")
 
 	w("## Use\n\n```\n")
 	w("go build ./...\n")
@@ -36,7 +36,9 @@ func (e *emitter) readme() []byte {
 	w("go run ./cmd/%s encrypt -keys keys -in input.csv -out x.ct   # client: one vector per line\n", p.Name)
 	w("go run ./cmd/%s eval -keys keys/eval -in x.ct -out y.ct      # server: no secret key\n", p.Name)
 	w("go run ./cmd/%s decrypt -keys keys -in y.ct                  # client: prints the outputs\n", p.Name)
+	w("go run ./cmd/%s bench -n 10                       # latency of one evaluation, key size, peak memory (-json for tools)\n", p.Name)
 	w("```\n\n")
+	w("`eval`, `selftest` and `bench` compute on `-threads N` goroutines (default: all cores); the result is the same ciphertext for any number.\n\n")
 
 	w("## Plan\n\n")
 	if e.in.Plan != nil {

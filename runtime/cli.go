@@ -91,7 +91,7 @@ const maxRoundDigits = 15
 const insecureNote = "INSECURE: this program's parameters exceed the 128-bit security bound; do not protect real data with them."
 
 // RunCLI is the command line of a generated program: keygen, encrypt, eval,
-// decrypt and selftest. It returns the process exit code.
+// decrypt, selftest and bench. It returns the process exit code.
 func RunCLI(info ModelInfo, load func(*Params) (Model, error), args []string, stdout, stderr io.Writer) int {
 	c := &cli{info: info, load: load, stdout: stdout, stderr: stderr}
 	cmds := []struct {
@@ -103,6 +103,7 @@ func RunCLI(info ModelInfo, load func(*Params) (Model, error), args []string, st
 		{"eval", "server: evaluate the model on a ciphertext, with evaluation keys only", c.eval},
 		{"decrypt", "client: decrypt a result and print the outputs", c.decrypt},
 		{"selftest", "run keygen, encrypt, eval and decrypt in memory and compare with float64", c.selftest},
+		{"bench", "measure the latency of one encrypted evaluation, the key size and peak memory", c.bench},
 	}
 	usage := func(w io.Writer) {
 		fmt.Fprintf(w, "%s evaluates the %s model on CKKS-encrypted inputs.\n\nUsage: %s COMMAND [flags]\n\nCommands:\n", info.Name, info.Name, info.Name)
@@ -340,10 +341,14 @@ func (c *cli) eval(args []string) error {
 	keys := fs.String("keys", "", "`folder` holding "+EvalKeysFile+" (the "+EvalKeysDir+" folder made by keygen)")
 	in := fs.String("in", "", "input ciphertext `file`")
 	out := fs.String("out", "", "result ciphertext `file` to write")
+	threads := threadsFlag(fs)
 	if err := parse(fs, args); err != nil {
 		return err
 	}
 	if err := required(fs, "keys", "in", "out"); err != nil {
+		return err
+	}
+	if err := checkThreads(fs, *threads); err != nil {
 		return err
 	}
 	if err := keyFolder(*keys); err != nil {
@@ -378,7 +383,8 @@ func (c *cli) eval(args []string) error {
 	}
 	prep := time.Since(start)
 	start = time.Now()
-	res, err := m.Evaluate(NewEvaluator(p, evk), cts)
+	ev := NewParallelEvaluator(p, evk, *threads)
+	res, err := m.Evaluate(ev, cts)
 	if err != nil {
 		return fmt.Errorf("%s: %w", *in, err)
 	}
@@ -389,7 +395,7 @@ func (c *cli) eval(args []string) error {
 	if err := WriteCiphertexts(*out, p, res); err != nil {
 		return err
 	}
-	fmt.Fprintf(c.stderr, "evaluated in %s (weights encoded in %s); wrote %s%s\n", took.Round(time.Millisecond), prep.Round(time.Millisecond), *out, c.insecureSuffix())
+	fmt.Fprintf(c.stderr, "evaluated in %s on %d threads (weights encoded in %s); wrote %s%s\n", took.Round(time.Millisecond), ev.Threads(), prep.Round(time.Millisecond), *out, c.insecureSuffix())
 	return nil
 }
 
@@ -490,15 +496,19 @@ func FormatValues(y []float64, digits int) string {
 }
 
 func (c *cli) selftest(args []string) error {
-	fs := c.flags("selftest", "[-n N] [-seed S]",
+	fs := c.flags("selftest", "[-n N] [-seed S] [-threads T]",
 		"Makes keys in memory, encrypts random inputs from the declared range,\nevaluates, decrypts and compares with the float64 reference.")
 	n := fs.Int("n", 3, "number of random inputs")
 	seed := fs.Uint64("seed", 1, "seed of the random inputs")
+	threads := threadsFlag(fs)
 	if err := parse(fs, args); err != nil {
 		return err
 	}
 	if *n < 1 {
 		return fmt.Errorf("-n must be at least 1")
+	}
+	if err := checkThreads(fs, *threads); err != nil {
+		return err
 	}
 	p, err := c.params()
 	if err != nil {
@@ -516,7 +526,7 @@ func (c *cli) selftest(args []string) error {
 		return err
 	}
 	prep := time.Since(start)
-	ev := NewEvaluator(p, evk)
+	ev := NewParallelEvaluator(p, evk, *threads)
 	r := rand.New(rand.NewPCG(*seed, 0x6c616e74686f726e))
 	var worst, worstExact Precision
 	var times []time.Duration
@@ -560,8 +570,8 @@ func (c *cli) selftest(args []string) error {
 		c.info.Name, p.Spec().LogN, p.MaxLevel(), len(c.info.Keys.Rotations), float64(evk.Size())/1e6, c.insecureSuffix())
 	fmt.Fprintf(w, "  precision vs float64 model (as encrypted):   max abs error %.3g (%.1f bits; target %d) over %d inputs\n", worst.MaxAbsErr, worst.Bits, c.info.Precision, *n)
 	fmt.Fprintf(w, "  deviation from exact activations:            max abs error %.3g (%.1f bits)\n", worstExact.MaxAbsErr, worstExact.Bits)
-	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d (keygen %s, weight encoding %s)\n",
-		median.Round(100*time.Microsecond), len(times), keygen.Round(time.Millisecond), prep.Round(time.Millisecond))
+	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d on %d threads (keygen %s, weight encoding %s)\n",
+		median.Round(100*time.Microsecond), len(times), ev.Threads(), keygen.Round(time.Millisecond), prep.Round(time.Millisecond))
 	if err := w.Flush(); err != nil {
 		return err
 	}
