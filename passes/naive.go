@@ -15,7 +15,8 @@ import (
 //   - a linear layer is the plain diagonal method over the whole period D:
 //     for each nonzero diagonal k, one rotation of the input by k with its
 //     own key switch (no baby-step giant-step split, no hoisting, no block
-//     folding), then one plaintext product (naiveMatVec);
+//     folding), then one plaintext product (naiveMatVec; naiveBlockMatVec
+//     where vectors span several ciphertexts);
 //   - every product is rescaled as soon as it is formed, before it is
 //     summed: one rescale per plaintext product instead of one per layer
 //     (naiveRescale, called by placeRescale);
@@ -64,6 +65,96 @@ func (b *builder) naiveMatVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID
 			&ir.Const{Name: l.Name + ".bias", Kind: ir.Vector, Data: bias})
 	}
 	return acc, nil
+}
+
+// naiveBlockMatVec is naiveMatVec for a layer whose input or output spans
+// several ciphertexts of D = Period values: block (j, i) of the matrix maps
+// input chunk i to output chunk j, and
+//
+//	y_j = Σ_i Σ_k diag^{ji}_k ⊙ rot_k(x_i) + b_j
+//
+// over the nonzero diagonals k of each block, with one rotation per
+// nonzero diagonal k of each input chunk (made once, for the first output
+// chunk that needs it) and one plaintext product per block diagonal.
+func (b *builder) naiveBlockMatVec(l *ir.Layer, xs []ir.ValueID, info *ir.LayerInfo, entries func(func(r, c int, v float64))) ([]ir.ValueID, error) {
+	D := b.p.Period
+	in, out := (l.In+D-1)/D, (l.Out+D-1)/D
+	if len(xs) != in {
+		return nil, fmt.Errorf("%s: %s: input in %d ciphertexts, the layer reads %d values (%d chunks of %d)", l.Pos, l.Name, len(xs), l.In, in, D)
+	}
+	type key struct{ j, i, k int } // output chunk, input chunk, diagonal
+	diags := map[key][]float64{}
+	entries(func(r, c int, v float64) {
+		if v == 0 {
+			return
+		}
+		t := r % D
+		k := key{r / D, c / D, ((c%D-t)%D + D) % D}
+		if diags[k] == nil {
+			diags[k] = make([]float64, D)
+		}
+		diags[k][t] += v
+	})
+	var keys []key
+	for k, d := range diags {
+		if !allZero(d) {
+			keys = append(keys, k)
+		}
+	}
+	slices.SortFunc(keys, func(a, b key) int {
+		if a.j != b.j {
+			return a.j - b.j
+		}
+		if a.i != b.i {
+			return a.i - b.i
+		}
+		return a.k - b.k
+	})
+	rot := map[[2]int]ir.ValueID{}
+	ys := make([]ir.ValueID, out)
+	for j := range out {
+		var acc ir.ValueID
+		have := false
+		for _, k := range keys {
+			if k.j != j {
+				continue
+			}
+			r, ok := rot[[2]int{k.i, k.k}]
+			switch {
+			case ok:
+			case k.k == 0:
+				r = xs[k.i]
+			default:
+				r = b.rotate(xs[k.i], k.k, fmt.Sprintf("In%dDiag%d", k.i, k.k))
+				rot[[2]int{k.i, k.k}] = r
+				info.Rotations++
+			}
+			prod := b.withConst(ir.OpMulPlain, fmt.Sprintf("Out%dIn%dProd%d", j, k.i, k.k), r,
+				&ir.Const{Name: fmt.Sprintf("%s.out%d.in%d.diag%d", l.Name, j, k.i, k.k), Kind: ir.Vector, Data: diags[k]})
+			info.PlainMuls++
+			if have {
+				acc = b.op(ir.OpAdd, fmt.Sprintf("Out%dSum%d_%d", j, k.i, k.k), acc, prod)
+			} else {
+				acc, have = prod, true
+			}
+		}
+		if !have {
+			return nil, fmt.Errorf("%s: %s: every weight of outputs %d..%d is zero; they are constants and need not be encrypted", l.Pos, l.Name, j*D, min(l.Out, (j+1)*D)-1)
+		}
+		bias := make([]float64, D)
+		for t := range bias {
+			if r := j*D + t; r < len(l.Bias) {
+				bias[t] = l.Bias[r]
+			}
+		}
+		if !allZero(bias) {
+			acc = b.withConst(ir.OpAddPlain, fmt.Sprintf("Out%d", j), acc,
+				&ir.Const{Name: fmt.Sprintf("%s.out%d.bias", l.Name, j), Kind: ir.Vector, Data: bias})
+		}
+		ys[j] = acc
+	}
+	info.Kind += fmt.Sprintf(" (%d×%d blocks of %d; naive: one rotation per diagonal)", out, in, D)
+	return ys, nil
 }
 
 // naiveRescale reports whether, under Options.Naive, the product made by

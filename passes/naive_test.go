@@ -102,9 +102,9 @@ func TestNaiveTestdata(t *testing.T) {
 
 // checkNaive checks the program's shape: no hoisted rotation, every
 // rotation is of a layer's input by one of its diagonals (one rotation per
-// nonzero diagonal, none shared), every plaintext product is rescaled
-// before any other use, and every ciphertext product is relinearized by
-// the very next op.
+// nonzero diagonal of each input ciphertext, none repeated), every
+// plaintext product is rescaled before any other use, and every ciphertext
+// product is relinearized by the very next op.
 func checkNaive(t *testing.T, p *ir.Program, st *State) {
 	t.Helper()
 	def := map[ir.ValueID]*ir.Op{}
@@ -113,7 +113,11 @@ func checkNaive(t *testing.T, p *ir.Program, st *State) {
 			def[r] = op
 		}
 	}
-	perLayer := map[int]map[int]bool{}
+	type rotation struct {
+		arg  ir.ValueID
+		step int
+	}
+	perLayer := map[int]map[rotation]bool{}
 	for i, op := range p.Ops {
 		switch op.Kind {
 		case ir.OpRotHoisted:
@@ -122,10 +126,11 @@ func checkNaive(t *testing.T, p *ir.Program, st *State) {
 			d := def[op.Args[0]]
 			require.True(t, d == nil || d.Layer != op.Layer, "%s rotates a value of its own layer", p.FormatOp(op))
 			if perLayer[op.Layer] == nil {
-				perLayer[op.Layer] = map[int]bool{}
+				perLayer[op.Layer] = map[rotation]bool{}
 			}
-			require.False(t, perLayer[op.Layer][op.Steps[0]], "%s: a second rotation by the same step", p.FormatOp(op))
-			perLayer[op.Layer][op.Steps[0]] = true
+			r := rotation{op.Args[0], op.Steps[0]}
+			require.False(t, perLayer[op.Layer][r], "%s: a second rotation of one value by the same step", p.FormatOp(op))
+			perLayer[op.Layer][r] = true
 		case ir.OpMulPlain:
 			us := uses(p, op.Results[0])
 			require.Len(t, us, 1, "%s", p.FormatOp(op))
@@ -137,33 +142,38 @@ func checkNaive(t *testing.T, p *ir.Program, st *State) {
 			require.Equal(t, op.Results[0], next.Args[0])
 		}
 	}
-	// One rotation per nonzero diagonal, of the graph layer it lowers.
-	for li, steps := range perLayer {
+	// One rotation per nonzero diagonal k of each input chunk i of the
+	// graph layer it lowers: entry (r, c) lies on diagonal (c − r) mod D of
+	// chunk c div D (rows and columns taken within their chunks).
+	for li, rots := range perLayer {
 		l := st.Graph.Layers[li]
 		D := p.Period
-		diag := map[int]bool{}
+		sum := map[[2]int]float64{}
 		switch l.Kind {
 		case ir.Dense:
 			for r, row := range l.Weights {
 				for c, v := range row {
-					if v != 0 {
-						diag[((c-r)%D+D)%D] = true
-					}
+					sum[[2]int{r, c}] += v
 				}
 			}
 		case ir.Linear:
 			for r, row := range l.Map.Row {
 				for _, e := range row {
-					if e.Val != 0 {
-						diag[((e.Col-r)%D+D)%D] = true
-					}
+					sum[[2]int{r, e.Col}] += e.Val
 				}
 			}
 		}
-		delete(diag, 0)
-		require.Equal(t, len(diag), len(steps), "layer %s: rotations", l.Name)
-		for k := range steps {
-			require.True(t, diag[k], "layer %s: rotation by %d is no diagonal", l.Name, k)
+		want := map[[2]int]bool{} // input chunk, diagonal
+		steps := map[int]bool{}
+		for rc, v := range sum {
+			if k := ((rc[1]%D-rc[0]%D)%D + D) % D; v != 0 && k != 0 {
+				want[[2]int{rc[1] / D, k}] = true
+				steps[k] = true
+			}
+		}
+		require.Equal(t, len(want), len(rots), "layer %s: rotations", l.Name)
+		for r := range rots {
+			require.True(t, steps[r.step], "layer %s: rotation by %d is no diagonal", l.Name, r.step)
 		}
 	}
 }
