@@ -32,8 +32,8 @@ type BudgetReport struct {
 // k is a chain of rotations by keys of S whose steps sum to k mod D. S is
 // chosen to minimise the estimated time of the chains, each rotation
 // weighted by the cost of a key switch at its level (default profile):
-// greedily, a key at a time from the used steps and the powers of two
-// either way, then by exchanging a key for another while that helps. The
+// greedily, a key at a time from the used steps and the powers of two,
+// each either way, then by exchanging a key for another while that helps. The
 // chains are shortest paths in Z_D (breadth first over S); a hoisted batch
 // whose steps are not all keys becomes one hoisted rotation by the first
 // key step of each chain, followed by the rest of the chains, sharing
@@ -47,28 +47,29 @@ func keyBudget(s *State) error {
 		return nil
 	}
 	p := s.Prog
-	per := keyBytes(p.Params)
 	steps := usedSteps(p)
+	relin := needsRelinKey(p)
 	fixed := 0
-	if needsRelinKey(p) {
+	if relin {
 		fixed = 1
 	}
+	size := func(rotations int) int64 { return keyFileBytes(p.Params, rotations, relin) }
 	exact := snapshot(p)
 	rep := &BudgetReport{LimitBytes: limit, Exact: exact, ExactSteps: steps, Steps: steps}
 	s.Report.Budget = rep
 	mb := func(b int64) float64 { return float64(b) / 1e6 }
-	if int64(len(steps)+fixed)*per <= limit {
-		s.note("key budget %.1f MB: the exact set of %d keys (%.1f MB) fits", mb(limit), len(steps)+fixed, mb(int64(len(steps)+fixed)*per))
+	if size(len(steps)) <= limit {
+		s.note("key budget %.1f MB: the exact set of %d keys (%.1f MB) fits", mb(limit), len(steps)+fixed, mb(size(len(steps))))
 		return nil
 	}
-	least := fixed
-	if len(steps) > 0 {
-		least++
-	}
-	room := int(limit/per) - fixed
-	if room < 1 {
+	least := min(len(steps), 1)
+	if size(least) > limit {
 		return fmt.Errorf("%s: key budget %.1f MB is below the smallest key set this program can use, %.1f MB (%d keys of %.2f MB each at logN %d with %d ciphertext and %d key-switching primes: %s)",
-			s.Graph.SpecFile, mb(limit), mb(int64(least)*per), least, mb(per), p.Params.LogN, len(p.Params.LogQ), len(p.Params.LogP), leastKeys(fixed, len(steps)))
+			s.Graph.SpecFile, mb(limit), mb(size(least)), least+fixed, mb(keyBytes(p.Params)), p.Params.LogN, len(p.Params.LogQ), len(p.Params.LogP), leastKeys(fixed, len(steps)))
+	}
+	room := least
+	for room < len(steps) && size(room+1) <= limit {
+		room++
 	}
 	uses := rotationUses(p)
 	prof := DefaultProfile()
@@ -81,8 +82,32 @@ func keyBudget(s *State) error {
 	rep.Added = added
 	est := func(set []int) float64 { return cost(set) / 1e6 }
 	s.note("key budget %.1f MB: %d rotation keys %v instead of %d (%.1f MB instead of %.1f MB); %d rotations composed from them, %d key switches more, about %.1f ms more (estimated)",
-		mb(limit), len(keys), keys, len(steps), mb(int64(len(keys)+fixed)*per), mb(int64(len(steps)+fixed)*per), rep.Composed, added, est(keys)-est(steps))
+		mb(limit), len(keys), keys, len(steps), mb(size(len(keys))), mb(size(len(steps))), rep.Composed, added, est(keys)-est(steps))
 	return nil
+}
+
+// keyFileBytes is the size of the evaluation-keys file that keygen writes
+// for the given number of rotation keys and, if relin, a relinearization
+// key: the runtime's 88-byte object header, its framing (a relinearization
+// flag, a count and a 4-byte step per rotation key), and each key in
+// lattigo's encoding — a key-switching key is 16 bytes of decomposition
+// bases and a matrix (8-byte length) of one row (8-byte length) per digit
+// holding one vector (8-byte length) of two polynomials over Q and P, each
+// a matrix (8-byte length) of rows (8-byte length) of N 8-byte
+// coefficients; a Galois key adds 16 bytes. It is what the budget bounds,
+// a few kilobytes per key above keyBytes; the key-budget end-to-end test
+// checks it against the file keygen writes.
+func keyFileBytes(pr ir.Params, rotations int, relin bool) int64 {
+	n := int64(1) << pr.LogN
+	q, pp := int64(len(pr.LogQ)), int64(len(pr.LogP))
+	digits := (q + pp - 1) / pp
+	poly := func(rows int64) int64 { return 8 + rows*(8+8*n) }
+	gadget := 16 + digits*(8+8+2*(poly(q)+poly(pp)))
+	size := int64(88+5+4*rotations) + int64(rotations)*(16+gadget)
+	if relin {
+		size += gadget
+	}
+	return size
 }
 
 func leastKeys(fixed, steps int) string {
@@ -240,11 +265,14 @@ func (g *stepGraph) cost(keys []int, uses []rotationUse, prof *Profile, logN int
 }
 
 // chooseKeys picks at most room keys among the used steps and the powers of
-// two in either direction, minimising cost: greedily, then by single
+// two, each in either direction, minimising cost: greedily, then by single
 // exchanges until none helps (a few rounds at most). Keys are returned in
 // ascending order.
 func chooseKeys(steps []int, room, D int, cost func([]int) float64) []int {
 	cands := slices.Clone(steps)
+	for _, k := range steps {
+		cands = append(cands, D-k) // the same rotation the other way
+	}
 	for k := 1; k < D; k *= 2 {
 		cands = append(cands, k, D-k)
 	}
@@ -272,6 +300,14 @@ func chooseKeys(steps []int, room, D int, cost func([]int) float64) []int {
 		}
 		set, best = with(set, pick), pickCost
 	}
+	set, _ = exchangeKeys(set, best, cands, cost)
+	return set
+}
+
+// exchangeKeys replaces a key of set by another candidate while that
+// lowers the cost, for a few rounds at most, and returns the set and its
+// cost.
+func exchangeKeys(set []int, best float64, cands []int, cost func([]int) float64) ([]int, float64) {
 	const rounds = 3
 	for range rounds {
 		improved := false
@@ -280,7 +316,8 @@ func chooseKeys(steps []int, room, D int, cost func([]int) float64) []int {
 				if slices.Contains(set, c) {
 					continue
 				}
-				trial := with(slices.Delete(slices.Clone(set), i, i+1), c)
+				trial := append(slices.Delete(slices.Clone(set), i, i+1), c)
+				slices.Sort(trial)
 				if v := cost(trial); v < best {
 					set, best, improved = trial, v, true
 					break
@@ -291,7 +328,7 @@ func chooseKeys(steps []int, room, D int, cost func([]int) float64) []int {
 			break
 		}
 	}
-	return set
+	return set, best
 }
 
 // composeRotations rewrites every rotation whose step is not a key as a

@@ -20,7 +20,7 @@ type PlanBudget struct {
 type BudgetPoint struct {
 	Rotations  []int   `json:"rotations"`
 	Count      int     `json:"count"` // keys, the relinearization key included
-	Bytes      int64   `json:"bytes"`
+	Bytes      int64   `json:"bytes"` // the evaluation-keys file keygen writes (keyFileBytes)
 	EstimateMS float64 `json:"estimate_ms"`
 }
 
@@ -35,10 +35,11 @@ func planBudget(st *State, prof *Profile, plan *Plan) *PlanBudget {
 	if plan.Keys.Relinearize {
 		fixed = 1
 	}
-	per := keyBytes(st.Prog.Params)
+	pr, relin := st.Prog.Params, plan.Keys.Relinearize
 	exact := BudgetPoint{Rotations: rep.ExactSteps, Count: len(rep.ExactSteps) + fixed,
-		Bytes: int64(len(rep.ExactSteps)+fixed) * per, EstimateMS: EstimateProgram(rep.Exact, prof).TotalMS}
-	budgeted := BudgetPoint{Rotations: plan.Keys.Rotations, Count: plan.Keys.Count, Bytes: plan.Keys.Bytes, EstimateMS: plan.EstimateMS}
+		Bytes: keyFileBytes(pr, len(rep.ExactSteps), relin), EstimateMS: EstimateProgram(rep.Exact, prof).TotalMS}
+	budgeted := BudgetPoint{Rotations: plan.Keys.Rotations, Count: plan.Keys.Count,
+		Bytes: keyFileBytes(pr, len(plan.Keys.Rotations), relin), EstimateMS: plan.EstimateMS}
 	return &PlanBudget{LimitBytes: rep.LimitBytes, Exact: exact, Budgeted: budgeted, Composed: rep.Composed, Added: rep.Added}
 }
 
