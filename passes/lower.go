@@ -10,7 +10,9 @@ import (
 // lower turns the graph into a program. Layout: every vector of length n
 // sits in slots [0, n) of a period D (the smallest power of two holding the
 // widest layer), zero-padded, replicated over all slots; a rotation of the
-// slot vector is then a cyclic rotation of length D.
+// slot vector is then a cyclic rotation of length D. A vector wider than
+// the largest ring's slots is split in chunks of D, one ciphertext each
+// (chunkPeriod, blocks.go).
 func lower(s *State) error {
 	g := s.Graph
 	p := &ir.Program{
@@ -22,17 +24,24 @@ func lower(s *State) error {
 	for _, l := range g.Layers {
 		widest = max(widest, l.Out)
 	}
-	p.Period = nextPow2(widest)
+	p.Period = chunkPeriod(s, widest)
 	p.Input = ir.PackedLayout(g.Input.Size, p.Period, p.Period)
 	p.Output = ir.PackedLayout(g.OutSize(), p.Period, p.Period)
 
-	x := p.NewValue(identifier(g.Input.Name), ir.Cipher, -1)
-	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpInput, Results: []ir.ValueID{x}, Const: -1, Layer: -1})
+	xs := inputValues(p, identifier(g.Input.Name))
 	for i, l := range g.Layers {
 		info := &ir.LayerInfo{Name: l.Name, Pos: l.Pos}
 		p.Layers = append(p.Layers, info)
 		b := &builder{p: p, layer: i, prefix: identifier(l.Name), method: s.Opts.Method}
 		b.naive = s.Opts.Naive
+		if len(xs) > 1 || chunks(l.Out, p.Period) > 1 {
+			var err error
+			if xs, err = b.chunked(l, xs, info); err != nil {
+				return err
+			}
+			continue
+		}
+		x := xs[0]
 		var err error
 		switch l.Kind {
 		case ir.Dense:
@@ -49,8 +58,9 @@ func lower(s *State) error {
 		if err != nil {
 			return err
 		}
+		xs = []ir.ValueID{x}
 	}
-	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpOutput, Args: []ir.ValueID{x}, Const: -1, Layer: len(p.Layers) - 1})
+	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpOutput, Args: xs, Const: -1, Layer: len(p.Layers) - 1})
 	s.Prog = p
 	return nil
 }

@@ -97,6 +97,11 @@ type Options struct {
 	// MaxKeyBytes bounds the evaluation keys (rotation and relinearization
 	// keys) in bytes; 0 means no bound. See keyBudget.
 	MaxKeyBytes int64
+	// ChunkSlots caps the ciphertext chunk: vectors wider than it (rounded
+	// up to a power of two) are split over several ciphertexts even when a
+	// larger ring would hold them in one; 0 splits only beyond the pinned
+	// ring or the largest ring (see chunkPeriod).
+	ChunkSlots int
 }
 
 // Report collects what the passes decided, for plans and trace comments.

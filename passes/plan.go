@@ -7,16 +7,20 @@ import (
 // Plan is the reviewable summary of a compiled program: parameters and why,
 // a row per layer, totals, keys and traffic.
 type Plan struct {
-	Model      string     `json:"model"`
-	Params     PlanParams `json:"params"`
-	Layers     []PlanRow  `json:"layers"`
-	Total      PlanRow    `json:"total"`
-	Keys       PlanKeys   `json:"keys"`
-	UploadB    int64      `json:"upload_bytes"`   // one input ciphertext
-	DownloadB  int64      `json:"download_bytes"` // one output ciphertext
-	EstimateMS float64    `json:"estimate_ms"`
-	Profile    string     `json:"profile"`
-	Notes      []string   `json:"notes"`
+	Model     string     `json:"model"`
+	Params    PlanParams `json:"params"`
+	Layers    []PlanRow  `json:"layers"`
+	Total     PlanRow    `json:"total"`
+	Keys      PlanKeys   `json:"keys"`
+	UploadB   int64      `json:"upload_bytes"`   // the input's ciphertexts
+	DownloadB int64      `json:"download_bytes"` // the output's ciphertexts
+	// UploadCts and DownloadCts count the ciphertexts of the input and the
+	// output: more than one when a vector is wider than a ciphertext.
+	UploadCts   int      `json:"upload_ciphertexts"`
+	DownloadCts int      `json:"download_ciphertexts"`
+	EstimateMS  float64  `json:"estimate_ms"`
+	Profile     string   `json:"profile"`
+	Notes       []string `json:"notes"`
 	// Alternatives are the variants the selection compiled, cheapest first.
 	Alternatives []string `json:"alternatives,omitempty"`
 	// Choices are the selection's decisions with their runner-ups.
@@ -104,8 +108,9 @@ func MakePlan(st *State, prof *Profile) *Plan {
 		keys++
 	}
 	plan.Keys = PlanKeys{Rotations: p.Rotations, Relinearize: p.Relinearize, Count: keys, Bytes: int64(keys) * keyBytes(pr)}
-	plan.UploadB = ciphertextBytes(pr, pr.MaxLevel())
-	plan.DownloadB = ciphertextBytes(pr, plan.Total.LevelOut)
+	plan.UploadCts, plan.DownloadCts = p.Input.Count(), p.Output.Count()
+	plan.UploadB = int64(plan.UploadCts) * ciphertextBytes(pr, pr.MaxLevel())
+	plan.DownloadB = int64(plan.DownloadCts) * ciphertextBytes(pr, plan.Total.LevelOut)
 	plan.Budget = planBudget(st, prof, plan)
 	return plan
 }

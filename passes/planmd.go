@@ -25,8 +25,8 @@ func (p *Plan) Markdown() string {
 	for _, r := range append(p.Layers, p.Total) {
 		fmt.Fprintf(&b, "| %s | %s | %s | %d→%d | %d | %d | %d | %d | %d | %.1f |\n", r.Layer, r.Source, r.Kind, r.LevelIn, r.LevelOut, r.Rotations, r.KeySwitches, r.PlainMuls, r.CtMuls, r.Rescales, r.EstimateMS)
 	}
-	fmt.Fprintf(&b, "\nEvaluation keys: %d (rotations %v, relinearization %v), %.1f MB. Ciphertexts: upload %.2f MB, download %.2f MB. Estimated latency %.1f ms (profile: %s).\n",
-		p.Keys.Count, p.Keys.Rotations, p.Keys.Relinearize, float64(p.Keys.Bytes)/1e6, float64(p.UploadB)/1e6, float64(p.DownloadB)/1e6, p.EstimateMS, p.Profile)
+	fmt.Fprintf(&b, "\nEvaluation keys: %d (rotations %v, relinearization %v), %.1f MB. Ciphertexts: upload %.2f MB%s, download %.2f MB%s. Estimated latency %.1f ms (profile: %s).\n",
+		p.Keys.Count, p.Keys.Rotations, p.Keys.Relinearize, float64(p.Keys.Bytes)/1e6, float64(p.UploadB)/1e6, p.ctCount(p.UploadCts), float64(p.DownloadB)/1e6, p.ctCount(p.DownloadCts), p.EstimateMS, p.Profile)
 	if p.Budget != nil {
 		line := p.Budget.String()
 		fmt.Fprintf(&b, "\n%s%s.\n", strings.ToUpper(line[:1]), line[1:])
@@ -35,4 +35,13 @@ func (p *Plan) Markdown() string {
 		fmt.Fprintf(&b, "\n%s", c)
 	}
 	return b.String()
+}
+
+// ctCount says " in N ciphertexts" for a vector of more than one
+// ciphertext, nothing otherwise.
+func (p *Plan) ctCount(n int) string {
+	if n <= 1 {
+		return ""
+	}
+	return fmt.Sprintf(" in %d ciphertexts", n)
 }

@@ -2,8 +2,8 @@ package runtime
 
 import (
 	"bytes"
-	"encoding/binary"
 	"crypto/sha256"
+	"encoding/binary"
 	"encoding/hex"
 	"flag"
 	"fmt"

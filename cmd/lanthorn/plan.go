@@ -93,7 +93,7 @@ func writePlanText(w io.Writer, p *passes.Plan) error {
 		return err
 	}
 	fmt.Fprintf(w, "\nevaluation keys: %d (%d rotations %v, relinearization %v), %.1f MB\n", p.Keys.Count, len(p.Keys.Rotations), p.Keys.Rotations, p.Keys.Relinearize, float64(p.Keys.Bytes)/1e6)
-	fmt.Fprintf(w, "ciphertexts: upload %.2f MB, download %.2f MB\n", float64(p.UploadB)/1e6, float64(p.DownloadB)/1e6)
+	fmt.Fprintf(w, "ciphertexts: upload %.2f MB%s, download %.2f MB%s\n", float64(p.UploadB)/1e6, ctCount(p.UploadCts), float64(p.DownloadB)/1e6, ctCount(p.DownloadCts))
 	fmt.Fprintf(w, "estimated latency: %.1f ms (profile: %s)\n", p.EstimateMS, p.Profile)
 	if p.Budget != nil {
 		fmt.Fprintf(w, "%s\n", p.Budget)
@@ -105,4 +105,13 @@ func writePlanText(w io.Writer, p *passes.Plan) error {
 		fmt.Fprintf(w, "considered: %s\n", a)
 	}
 	return p.WriteChoicesText(w)
+}
+
+// ctCount says " in N ciphertexts" for a vector of more than one
+// ciphertext, nothing otherwise.
+func ctCount(n int) string {
+	if n <= 1 {
+		return ""
+	}
+	return fmt.Sprintf(" in %d ciphertexts", n)
 }
