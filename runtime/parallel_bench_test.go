@@ -8,7 +8,8 @@ import (
 // BenchmarkMatVecThreads times the matrix-vector workload (matvec_test.go:
 // two 64×64 dense layers by baby-step giant-step with 8 hoisted baby steps,
 // and a square, at ring degree 2^13) on 1 and 2 threads. It measures, it
-// does not assert; compare the two in one run:
+// does not assert; compare the two in one run (cpu-ms/op is the process's
+// CPU time per evaluation):
 //
 //	go test ./runtime -run '^$' -bench MatVecThreads -benchtime 20x
 func BenchmarkMatVecThreads(b *testing.B) {
@@ -21,10 +22,17 @@ func BenchmarkMatVecThreads(b *testing.B) {
 				b.Fatal(err)
 			}
 			b.ReportAllocs()
+			cpu0, ok := processCPU()
 			for b.Loop() {
 				if _, err := s.evaluate(ev, in); err != nil {
 					b.Fatal(err)
 				}
+			}
+			// CPU time per evaluation: equal for 1 and 2 threads when the
+			// parallel run adds no work; wall time over CPU time shows how
+			// much of the machine the run got.
+			if cpu1, _ := processCPU(); ok {
+				b.ReportMetric(float64(cpu1-cpu0)/float64(b.N)/1e6, "cpu-ms/op")
 			}
 		})
 	}
