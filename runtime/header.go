@@ -191,7 +191,11 @@ func readObject(r io.Reader, p *Params, want objectKind, count int, maxPayload i
 		return nil, fmt.Errorf("%s for another model (%s)", want.noun(), fingerprints(hdr[12:44], p.fp[:]))
 	}
 	if n := binary.LittleEndian.Uint32(hdr[84:88]); uint64(n) != uint64(count) {
-		return nil, fmt.Errorf("file holds %d %s, this program takes %d", n, want.plural(), count)
+		what := want.plural()
+		if n == 1 {
+			what = want.noun()
+		}
+		return nil, fmt.Errorf("file holds %d %s, this program takes %d", n, what, count)
 	}
 	size := binary.LittleEndian.Uint64(hdr[44:52])
 	if size > uint64(maxPayload) {
