@@ -68,6 +68,13 @@ func BenchmarkModels(b *testing.B) {
 			goruntime.NumCPU(), goruntime.GOMAXPROCS(0), time.Since(start).Round(time.Second))
 		os.Stdout.Write(out.Bytes())
 		reportGeomeans(b, rows)
+		for _, r := range rows {
+			for _, v := range r.opt {
+				if v.failed {
+					b.Errorf("%s optimised on %d threads: %s", r.name, v.threads, v.skipped)
+				}
+			}
+		}
 	}
 }
 
@@ -134,6 +141,7 @@ type variantRow struct {
 	plan     *passes.Plan
 	result   *benchResult // nil when not measured
 	skipped  string       // why it was not measured
+	failed   bool         // its bench command failed (skipped says how)
 	planKeys float64      // evaluation-key MB by the plan
 }
 
@@ -187,7 +195,7 @@ func benchModel(b *testing.B, m model, threads []int) (modelRow, error) {
 	}
 	for i := range row.opt {
 		if row.opt[i].result, err = runBench(bin, *runs, row.opt[i].threads); err != nil {
-			return row, fmt.Errorf("optimised program: %w", err)
+			row.opt[i].skipped, row.opt[i].failed = "failed: "+err.Error(), true
 		}
 	}
 	if measureErr == nil {
@@ -207,11 +215,11 @@ func benchModel(b *testing.B, m model, threads []int) (modelRow, error) {
 			n = 1
 		}
 		bin, err := buildProgram(b, naiveFiles, naiveSt.Prog.Name)
-		if err == nil {
-			row.naive.result, err = runBench(bin, n, row.naive.threads)
-		}
 		if err != nil {
 			return row, fmt.Errorf("naive program: %w", err)
+		}
+		if row.naive.result, err = runBench(bin, n, row.naive.threads); err != nil {
+			row.naive.skipped, row.naive.failed = "failed: "+err.Error(), true
 		}
 	}
 	return row, nil
@@ -290,7 +298,7 @@ func runBench(bin string, n, threads int) (*benchResult, error) {
 	cmd.Dir, cmd.Stdout, cmd.Stderr = filepath.Dir(bin), &stdout, &stderr
 	name := filepath.Base(bin)
 	if err := cmd.Run(); err != nil {
-		return nil, fmt.Errorf("%s bench: %w\nstderr:\n%s", name, err, stderr.String())
+		return nil, fmt.Errorf("%s bench: %w: %s", name, err, lastLine(stderr.String()))
 	}
 	var r benchResult
 	if err := json.NewDecoder(&stdout).Decode(&r); err != nil {
@@ -301,6 +309,13 @@ func runBench(bin string, n, threads int) (*benchResult, error) {
 			name, r.Runs, r.Threads, r.MedianMS, n, threads)
 	}
 	return &r, nil
+}
+
+// lastLine is the last non-empty line of a command's error output: its
+// message, for the table's notes.
+func lastLine(s string) string {
+	lines := strings.Split(strings.TrimSpace(s), "\n")
+	return strings.TrimSpace(lines[len(lines)-1])
 }
 
 // parseThreads reads -threads: a list of thread counts, each at least 1;

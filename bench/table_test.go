@@ -32,8 +32,12 @@ func writeTable(w io.Writer, rows []modelRow, budgetMB float64) {
 				cells = []string{v.variant, ms(res.MedianMS), ms(res.MinMS) + "–" + ms(res.MaxMS), ms(v.plan.EstimateMS),
 					mb(res.KeysMB), mb(res.PeakMB), fmt.Sprint(res.Threads), fmt.Sprint(res.Runs)}
 			} else {
-				cells = []string{v.variant, "not measured*", "", ms(v.plan.EstimateMS), mb(v.planKeys) + " (plan)", "", fmt.Sprint(v.threads), ""}
-				notes = append(notes, fmt.Sprintf("* %s %s: %s", r.name, v.variant, v.skipped))
+				what := "not measured*"
+				if v.failed {
+					what = "failed*"
+				}
+				cells = []string{v.variant, what, "", ms(v.plan.EstimateMS), mb(v.planKeys) + " (plan)", "", fmt.Sprint(v.threads), ""}
+				notes = append(notes, fmt.Sprintf("* %s %s on %d threads: %s", r.name, v.variant, v.threads, v.skipped))
 			}
 			if v.variant == "optimised" {
 				vsNaive := "–"
@@ -121,6 +125,10 @@ func TestTable(t *testing.T) {
 			opt:      []variantRow{{variant: "optimised", threads: 2, plan: digits, planKeys: 671, result: &benchResult{Threads: 2, Runs: 7, MedianMS: 300, MinMS: 290, MaxMS: 310, KeysMB: 670, PeakMB: 1200}}},
 			naive:    variantRow{variant: "naive", threads: 2, plan: plan(47000, 39482e6, 3586), planKeys: 39482, skipped: "not measured: keys above the budget"},
 			boundErr: fmt.Errorf("measure: no levels")},
+		{name: "models/tiny",
+			opt:   []variantRow{{variant: "optimised", threads: 2, plan: plan(10, 1e6, 2), planKeys: 1, result: &benchResult{Threads: 2, Runs: 7, MedianMS: 5, MinMS: 4, MaxMS: 6, KeysMB: 1, PeakMB: 50}}},
+			naive: variantRow{variant: "naive", threads: 2, plan: plan(20, 2e6, 3), planKeys: 2, failed: true, skipped: "failed: tiny bench: exit status 1: warm-up result differs"},
+			bound: &passes.Bound{MS: 4}},
 	}
 	var sb strings.Builder
 	writeTable(&sb, rows, 6000)
@@ -136,8 +144,10 @@ func TestTable(t *testing.T) {
 	require.Regexp(t, `mnist/digits\s+optimised\s+300\s+290–310\s+1000\s+670.0\s+1200.0\s+2\s+7\s+–\s+–`, lines[6])
 	require.Regexp(t, `naive\s+not measured\*\s+47000\s+39482.0 \(plan\)\s+2\s*$`, lines[7])
 	require.Regexp(t, `lower bound\s+not computed\*`, lines[8])
-	require.Contains(t, out, "* mnist/digits naive: not measured: keys above the budget")
+	require.Contains(t, out, "* mnist/digits naive on 2 threads: not measured: keys above the budget")
 	require.Contains(t, out, "* mnist/digits lower bound: measure: no levels")
+	require.Regexp(t, `^\s+naive\s+failed\*\s+20.0\s+2.0 \(plan\)\s+2\s*$`, lines[10])
+	require.Contains(t, out, "* models/tiny naive on 2 threads: failed: tiny bench: exit status 1: warm-up result differs")
 	require.Contains(t, out, passes.BoundDefinition)
 	require.Contains(t, out, "demo/gearbox: 160.0 ms of work at one thread: dense1: 16 products, 7+1 rotations (n1=8), 160.0 ms (primitives)")
 }
