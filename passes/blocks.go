@@ -133,45 +133,59 @@ func (b *builder) blockMatVec(l *ir.Layer, xs []ir.ValueID, info *ir.LayerInfo, 
 	if len(xs) != in {
 		return nil, fmt.Errorf("%s: %s: input in %d ciphertexts, the layer reads %d values (%d chunks of %d)", l.Pos, l.Name, len(xs), l.In, in, D)
 	}
-	diags := map[blockKey][]float64{}
+	// The diagonals are built only for the method chosen: a layer of few
+	// outputs over wide chunks has D diagonals of D slots per block before
+	// folding, B after.
+	type entry struct {
+		r, c int
+		v    float64
+	}
+	var es []entry
 	entries(func(r, c int, v float64) {
-		if v == 0 {
-			return
+		if v != 0 {
+			es = append(es, entry{r, c, v})
 		}
-		t, cc := r%D, c%D
-		key := blockKey{r / D, c / D, ((cc-t)%D + D) % D}
+	})
+	plain := func(e entry) (blockKey, int) {
+		t := e.r % D
+		return blockKey{e.r / D, e.c / D, ((e.c%D-t)%D + D) % D}, t
+	}
+	place := plain
+	keys := func(at func(entry) (blockKey, int)) map[blockKey]bool {
+		m := map[blockKey]bool{}
+		for _, e := range es {
+			k, _ := at(e)
+			m[k] = true
+		}
+		return m
+	}
+	n1, cost := bestSharedBabySteps(keys(plain), D)
+	block := D
+	if B := nextPow2(l.Out); out == 1 && B < D {
+		// blockDiags directly: entry (t, c) on diagonal K = (c − t) mod D
+		// of its block goes to folded diagonal K mod B, slot ⌊K/B⌋·B + t.
+		folded := func(e entry) (blockKey, int) {
+			K := ((e.c%D-e.r)%D + D) % D
+			return blockKey{0, e.c / D, K % B}, (K/B)*B + e.r
+		}
+		fn1, fcost := bestSharedBabySteps(keys(folded), D)
+		if fcost += log2(D / B); useBlocks(b.method, l.Name, cost, fcost) {
+			place, n1, block = folded, fn1, B
+		}
+	}
+	diags := map[blockKey][]float64{}
+	for _, e := range es {
+		key, slot := place(e)
 		d, ok := diags[key]
 		if !ok {
 			d = make([]float64, D)
 			diags[key] = d
 		}
-		d[t] += v
-	})
+		d[slot] += e.v
+	}
 	for k, d := range diags {
 		if allZero(d) {
 			delete(diags, k)
-		}
-	}
-	n1, cost := bestSharedBabySteps(diags, D)
-	block := D
-	if B := nextPow2(l.Out); out == 1 && B < D {
-		folded := map[blockKey][]float64{}
-		for i := range in {
-			part := map[int][]float64{}
-			for key, d := range diags {
-				if key.i == i {
-					part[key.k] = d
-				}
-			}
-			for k, h := range blockDiags(part, l.Out, B, D) {
-				if !allZero(h) {
-					folded[blockKey{0, i, k}] = h
-				}
-			}
-		}
-		fn1, fcost := bestSharedBabySteps(folded, D)
-		if fcost += log2(D / B); useBlocks(b.method, l.Name, cost, fcost) {
-			diags, n1, block = folded, fn1, B
 		}
 	}
 	info.BabySteps, info.GiantSteps = n1, (D+n1-1)/n1
@@ -277,8 +291,9 @@ func (b *builder) blockMatVec(l *ir.Layer, xs []ir.ValueID, info *ir.LayerInfo, 
 // minimises its rotations: for each input chunk i, the distinct nonzero
 // k mod n1 of its blocks' diagonals (its hoisted baby steps), plus for each
 // output chunk j, the distinct nonzero k / n1 (its giant steps). Ties go to
-// the smallest n1.
-func bestSharedBabySteps(diags map[blockKey][]float64, D int) (n1, rotations int) {
+// the smallest n1. The candidates are those of babyCandidates, not every
+// n1 ≤ D: chunks are wide and layers have up to D diagonals per block.
+func bestSharedBabySteps(diags map[blockKey]bool, D int) (n1, rotations int) {
 	keys := make([]blockKey, 0, len(diags))
 	in, out := 1, 1
 	for k := range diags {
@@ -289,7 +304,7 @@ func bestSharedBabySteps(diags map[blockKey][]float64, D int) (n1, rotations int
 	// this n; likewise giants. No clearing between candidates.
 	babies, giants := make([]int, in*D), make([]int, out*(D+1))
 	best, bestCost := 1, math.MaxInt
-	for n := 1; n <= D; n++ {
+	for _, n := range babyCandidates(D) {
 		cost := 0
 		for _, k := range keys {
 			if s := k.k % n; s != 0 && babies[k.i*D+s] != n {
@@ -306,4 +321,20 @@ func bestSharedBabySteps(diags map[blockKey][]float64, D int) (n1, rotations int
 		}
 	}
 	return best, bestCost
+}
+
+// babyCandidates are the baby-step counts bestSharedBabySteps tries, in
+// ascending order: every n up to 4·√D (a dense block's best split is near
+// √D) and every power of two up to D (a folded block of B diagonals is
+// best split at B).
+func babyCandidates(D int) []int {
+	limit := min(D, 4*int(math.Ceil(math.Sqrt(float64(D)))))
+	var out []int
+	for n := 1; n <= limit; n++ {
+		out = append(out, n)
+	}
+	for n := nextPow2(limit + 1); n <= D; n *= 2 {
+		out = append(out, n)
+	}
+	return out
 }

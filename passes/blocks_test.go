@@ -199,3 +199,22 @@ func TestChunkPeriod(t *testing.T) {
 		require.Equal(t, c.want, chunkPeriod(st(c.pin, c.chunk), c.widest), "%+v", c)
 	}
 }
+
+// Without a pin, a vector wider than the largest ring's 2^14 slots is
+// split in chunks of 2^14 under logN 15; the folded first layer keeps its
+// diagonals to B per input chunk.
+func TestChunkedBeyondLargestRing(t *testing.T) {
+	g := randomGraph(13, 20000, []int{2}, nil)
+	prog, st, err := Compile(g, Options{})
+	require.NoError(t, err)
+	require.Equal(t, 1<<14, prog.Period)
+	require.Equal(t, 15, prog.Params.LogN)
+	require.Equal(t, 2, prog.Input.Count())
+	require.LessOrEqual(t, len(prog.Consts), 2*2+1, "two folded diagonals per input chunk and a bias")
+	x := randomInput(1, 20000)
+	want, err := st.Model.Reference(x)
+	require.NoError(t, err)
+	got, err := prog.Simulate(x)
+	require.NoError(t, err)
+	require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
+}
