@@ -336,7 +336,7 @@ func keyFolder(path string) error {
 }
 
 func (c *cli) eval(args []string) error {
-	fs := c.flags("eval", "-keys DIR -in FILE.ct -out FILE.ct",
+	fs := c.flags("eval", "-keys DIR -in FILE.ct -out FILE.ct [-threads T]",
 		"Evaluates the model on an encrypted input with the evaluation keys only.\nRefuses a key folder that holds a secret key: the server must never have it.")
 	keys := fs.String("keys", "", "`folder` holding "+EvalKeysFile+" (the "+EvalKeysDir+" folder made by keygen)")
 	in := fs.String("in", "", "input ciphertext `file`")
