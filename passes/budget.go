@@ -20,8 +20,10 @@ type BudgetReport struct {
 	// ExactSteps is the exact rotation set; Steps the set kept (equal when
 	// the exact set fits).
 	ExactSteps, Steps []int
-	// Composed counts the rotations rewritten as chains, Added the key
-	// switches the chains add.
+	// Composed counts the exact program's rotations whose step is not a
+	// key (each becomes a chain or part of a nested sum), Added the key
+	// switches this adds (the budgeted program's rotations minus the exact
+	// program's).
 	Composed, Added int
 }
 
@@ -71,19 +73,55 @@ func keyBudget(s *State) error {
 	for room < len(steps) && size(room+1) <= limit {
 		room++
 	}
-	uses := rotationUses(p)
+	sums := rotationSums(p)
+	var uses []rotationUse
+	cands := slices.Clone(steps)
+	for _, u := range rotationUses(p) {
+		if !slices.ContainsFunc(sums, func(r rotationSum) bool { return slices.Contains(r.rotations, u.op) }) {
+			uses = append(uses, u)
+		}
+	}
+	for _, r := range sums {
+		cands = append(cands, r.nested()...)
+	}
+	slices.Sort(cands)
+	cands = slices.Compact(cands)
 	prof := DefaultProfile()
 	g := newStepGraph(p.Period)
-	cost := func(set []int) float64 { return g.cost(set, uses, prof, p.Params.LogN) }
-	keys := chooseKeys(steps, room, p.Period, cost)
-	g.search(keys)
-	rep.Steps = keys
-	added := composeRotations(p, g, uses, rep)
-	rep.Added = added
+	cost := func(set []int) float64 { return g.cost(set, uses, sums, prof, p.Params.LogN) }
+	keys := chooseKeys(cands, room, p.Period, cost)
 	est := func(set []int) float64 { return cost(set) / 1e6 }
+	saved := est(keys)
+	g.search(keys)
+	for _, u := range rotationUses(p) {
+		for _, k := range u.steps {
+			if g.dist[k] != 1 {
+				rep.Composed++
+			}
+		}
+	}
+	nested := nestSums(p, g, sums)
+	composeRotations(p, g, rotationUses(p))
+	rep.Steps = keys
+	rep.Added = rotationCount(p) - rotationCount(exact)
+	added := rep.Added
 	s.note("key budget %.1f MB: %d rotation keys %v instead of %d (%.1f MB instead of %.1f MB); %d rotations composed from them, %d key switches more, about %.1f ms more (estimated)",
-		mb(limit), len(keys), keys, len(steps), mb(size(len(keys))), mb(size(len(steps))), rep.Composed, added, est(keys)-est(steps))
+		mb(limit), len(keys), keys, len(steps), mb(size(len(keys))), mb(size(len(steps))), rep.Composed, added, saved-est(steps))
+	if nested > 0 {
+		s.note("key budget: %d sums of rotations nested (Σ rot_k(b) as b1 + rot(b2 + rot(…)), so that they rotate by the differences of their steps", nested)
+	}
 	return nil
+}
+
+// rotationCount is the number of rotations (key switches) of a program.
+func rotationCount(p *ir.Program) int {
+	n := 0
+	for _, op := range p.Ops {
+		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
+			n += len(op.Steps)
+		}
+	}
+	return n
 }
 
 // keyFileBytes is the size of the evaluation-keys file that keygen writes
@@ -217,6 +255,20 @@ func (g *stepGraph) path(k int) []int {
 	return nodes
 }
 
+// hops is the number of rotations of chains for the given steps (after a
+// search); an unreachable step counts as unreachablePenalty.
+func (g *stepGraph) hops(steps []int) int {
+	n := 0
+	for _, k := range steps {
+		if d := g.dist[k]; d >= 0 {
+			n += d
+		} else {
+			n += g.unreachablePenalty()
+		}
+	}
+	return n
+}
+
 // unreachablePenalty prices a step the keys cannot reach as this many
 // rotations, more than any chain, so the greedy choice first reaches all.
 func (g *stepGraph) unreachablePenalty() int { return 2 * g.D }
@@ -226,9 +278,12 @@ func (g *stepGraph) unreachablePenalty() int { return 2 * g.D }
 // costs one key switch per hop; a hoisted batch costs a hoisted rotation
 // per distinct first hop plus one key switch per other distinct node of
 // its chains. With the exact set it is the program's own rotation cost.
-func (g *stepGraph) cost(keys []int, uses []rotationUse, prof *Profile, logN int) float64 {
+func (g *stepGraph) cost(keys []int, uses []rotationUse, sums []rotationSum, prof *Profile, logN int) float64 {
 	g.search(keys)
 	var total float64
+	for _, r := range sums {
+		total += float64(min(g.hops(r.steps), g.hops(r.nested()))) * prof.Cost(CostRotate, logN, r.level)
+	}
 	seen := map[int]bool{}
 	for _, u := range uses {
 		rot := prof.Cost(CostRotate, logN, u.level)
@@ -335,7 +390,7 @@ func exchangeKeys(set []int, best float64, cands []int, cost func([]int) float64
 // chain over g's paths (g must hold the search for the chosen keys) and
 // returns the number of key switches added. Ops are replaced, never edited,
 // so the exact snapshot stays valid.
-func composeRotations(p *ir.Program, g *stepGraph, uses []rotationUse, rep *BudgetReport) int {
+func composeRotations(p *ir.Program, g *stepGraph, uses []rotationUse) int {
 	added := 0
 	replace := map[int][]*ir.Op{}
 	for _, u := range uses {
@@ -364,9 +419,6 @@ func composeRotations(p *ir.Program, g *stepGraph, uses []rotationUse, rep *Budg
 					value[v] = newLike(p, op.Results[0], fmt.Sprintf("Via%d", v))
 				}
 				order = append(order, v)
-			}
-			if g.dist[k] > 1 {
-				rep.Composed++
 			}
 		}
 		var ops []*ir.Op

@@ -81,15 +81,6 @@ func TestBudgetTestdata(t *testing.T) {
 	}
 }
 
-func rotationCount(p *ir.Program) int {
-	n := 0
-	for _, op := range p.Ops {
-		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
-			n += len(op.Steps)
-		}
-	}
-	return n
-}
 
 // A budget that holds the exact set changes nothing; one below the
 // smallest usable set is an error that names that size.
@@ -202,8 +193,7 @@ func TestComposeHoistedBatch(t *testing.T) {
 	keys := []int{1, 4}
 	g := newStepGraph(p.Period)
 	g.search(keys)
-	rep := &BudgetReport{ExactSteps: steps}
-	added := composeRotations(p, g, rotationUses(p), rep)
+	added := composeRotations(p, g, rotationUses(p))
 	require.NoError(t, ir.VerifyProgram(p, ir.Lowered))
 	got, err := p.Simulate(x0)
 	require.NoError(t, err)
@@ -212,7 +202,6 @@ func TestComposeHoistedBatch(t *testing.T) {
 	// 9 = 5+4, so the nodes are 1, 5, 2, 6, 9 with one first hop: one
 	// hoisted rotation and four chained, five rotations for four.
 	require.Equal(t, 1, added)
-	require.Equal(t, 3, rep.Composed)
 	var hoisted []int
 	for _, op := range p.Ops {
 		if op.Kind == ir.OpRotHoisted {
@@ -255,7 +244,7 @@ func TestChooseKeysNearOptimal(t *testing.T) {
 		slices.Sort(steps)
 		steps = slices.Compact(steps)
 		g := newStepGraph(D)
-		cost := func(set []int) float64 { return g.cost(set, uses, prof, 13) }
+		cost := func(set []int) float64 { return g.cost(set, uses, nil, prof, 13) }
 		for room := 1; room <= 3 && room < len(steps); room++ {
 			got := cost(chooseKeys(steps, room, D, cost))
 			cands := slices.Clone(steps)
@@ -290,4 +279,37 @@ func TestChooseKeysNearOptimal(t *testing.T) {
 	t.Logf("best set found in %d of %d cases; worst ratio to the best %.3f", optimal, total, worst)
 	require.LessOrEqual(t, worst, 1.15)
 	require.GreaterOrEqual(t, 5*optimal, 4*total, "the best set in at least four cases of five")
+}
+
+// A sum of rotations b0 + rot_10(b1) + rot_20(b2) + rot_30(b3) + c with
+// the key 10 alone becomes b0 + rot_10(b1 + rot_10(b2 + rot_10(b3))) + c:
+// three rotations, as before, all by the key; the simulation is unchanged.
+func TestNestSums(t *testing.T) {
+	h, x := newHand(4, 4, 64)
+	w := func(base float64) []float64 {
+		d := make([]float64, 64)
+		for i := range d {
+			d[i] = base + float64(i%7)/10
+		}
+		return d
+	}
+	acc := h.mulPlain(x, w(0.3))
+	for j := 1; j <= 3; j++ {
+		acc = h.add(acc, h.rotate(h.mulPlain(x, w(float64(j))), 10*j))
+	}
+	h.output(h.addPlain(acc, w(0.05)))
+	in := randomInput(5, 4)
+	want := fullSlots(t, h.p, in)
+	sums := rotationSums(h.p)
+	require.Len(t, sums, 1)
+	require.Equal(t, []int{10, 20, 30}, sums[0].steps)
+	require.Equal(t, []int{10, 10, 10}, sums[0].nested())
+	g := newStepGraph(64)
+	g.search([]int{10})
+	require.Equal(t, 1, nestSums(h.p, g, sums))
+	require.NoError(t, ir.VerifyProgram(h.p, ir.Lowered))
+	require.Equal(t, []int{10}, usedSteps(h.p))
+	require.Equal(t, 3, rotationCount(h.p))
+	got := fullSlots(t, h.p, in)
+	require.InDeltaSlice(t, want, got, 1e-12)
 }
