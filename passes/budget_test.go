@@ -81,7 +81,6 @@ func TestBudgetTestdata(t *testing.T) {
 	}
 }
 
-
 // A budget that holds the exact set changes nothing; one below the
 // smallest usable set is an error that names that size.
 func TestBudgetFitsOrRefuses(t *testing.T) {
