@@ -27,22 +27,30 @@ type BudgetReport struct {
 	Composed, Added int
 }
 
-// keyBudget bounds the evaluation keys at Options.MaxKeyBytes. When the
-// exact rotation set (plus the relinearization key) is larger, it keeps a
-// smaller set S of rotation keys and composes every other rotation from
-// them: the vectors are periodic in the layout's period D, so a rotation by
-// k is a chain of rotations by keys of S whose steps sum to k mod D. S is
-// chosen to minimise the estimated time of the chains, each rotation
-// weighted by the cost of a key switch at its level (default profile):
-// greedily, a key at a time from the used steps and the powers of two,
-// each either way, then by exchanging a key for another while that helps. The
-// chains are shortest paths in Z_D (breadth first over S); a hoisted batch
-// whose steps are not all keys becomes one hoisted rotation by the first
-// key step of each chain, followed by the rest of the chains, sharing
-// common prefixes.
+// keyBudget bounds the evaluation-keys file (keyFileBytes) at
+// Options.MaxKeyBytes. When the exact rotation set (plus the
+// relinearization key) is larger, it keeps as many rotation keys S as fit
+// and composes every other rotation from them: the vectors are periodic in
+// the layout's period D, so a rotation by k is a chain of rotations by keys
+// of S whose steps sum to k mod D. Two rewrites use S:
+//
+//   - a sum of rotations (a giant-step accumulation) may be nested so that
+//     it rotates by the differences of its steps (rotationSum), where that
+//     takes fewer rotations with S;
+//   - every rotation left whose step is not a key becomes a shortest chain
+//     in Z_D (breadth first over S); a hoisted batch whose steps are not
+//     all keys becomes one hoisted rotation by the first key step of each
+//     chain, followed by the rest of the chains, sharing common prefixes.
+//
+// S is chosen to minimise the estimated time of the result, each rotation
+// weighted by the cost of a key switch at its level (default profile) and
+// each sum priced at the cheaper of its two forms: greedily, a key at a
+// time from the used steps, the steps of the nested sums and the powers of
+// two, each either way, then by exchanging a key for another while that
+// helps.
 //
 // Keys are generated at the top level: the runtime has no keys restricted
-// to the level of use, so each costs keyBytes.
+// to the level of use, so each costs the same.
 func keyBudget(s *State) error {
 	limit := s.Opts.MaxKeyBytes
 	if limit <= 0 {

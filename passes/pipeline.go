@@ -45,7 +45,7 @@ var Pipeline = []Pass{
 	{Name: "levels", Run: assignLevels, Required: true, Stage: ir.Leveled,
 		Why: "assign levels and exact scales; encode plaintexts at the scale of the prime the next rescale drops"},
 	{Name: "key-budget", Run: keyBudget, Stage: ir.Leveled,
-		Why: "under a key budget, keep fewer rotation keys and compose the other rotations as chains of them"},
+		Why: "under a key budget, keep fewer rotation keys; nest sums of rotations and compose the other rotations as chains of them"},
 	{Name: "keys", Run: collectKeys, Required: true, Stage: ir.Keyed,
 		Why: "the Galois key set is exactly the rotations used"},
 	{Name: "names", Run: nameValues, Required: true, Stage: ir.Keyed,
