@@ -35,8 +35,11 @@ func (p *Plan) WriteChoicesText(w io.Writer) error {
 	}
 	for _, c := range p.Choices {
 		ru, ms, mb := runnerUpCells(c)
-		if _, err := fmt.Fprintf(w, "  %s: %s (%.1f ms, keys %.1f MB); runner-up: %s (%s ms, keys %s MB)\n",
-			c.Decision, c.Chosen, c.ChosenMS, float64(c.ChosenKeyBytes)/1e6, ru, ms, mb); err != nil {
+		if c.RunnerUp != "" && c.RunnerUpErr == "" {
+			ru += fmt.Sprintf(" (%s ms, keys %s MB)", ms, mb)
+		}
+		if _, err := fmt.Fprintf(w, "  %s: %s (%.1f ms, keys %.1f MB); runner-up: %s\n",
+			c.Decision, c.Chosen, c.ChosenMS, float64(c.ChosenKeyBytes)/1e6, ru); err != nil {
 			return err
 		}
 	}

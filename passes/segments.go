@@ -39,6 +39,14 @@ type segmentSpace struct {
 	starts  [][]*segment
 	methods map[methodKey]*segment
 	opts    Options // the compilation's options (Naive, say)
+	pin     *ir.ParamPin
+}
+
+// period is the layout period lower gives a program whose widest vector
+// holds n values: the next power of two, capped where vectors are chunked
+// (chunkPeriod).
+func (sp *segmentSpace) period(n int) int {
+	return chunkPeriod(&State{Graph: &ir.Graph{Pin: sp.pin}, Opts: sp.opts}, n)
 }
 
 // outputPasses are the program passes before params that concern the
@@ -48,7 +56,7 @@ var outputPasses = map[string]bool{"output-mask": true}
 // newSegmentSpace lists the segments of pre, the graph after the graph
 // passes that come before merge-linear.
 func newSegmentSpace(pre *ir.Graph, degrees map[string][]DegreeOption, opts Options) *segmentSpace {
-	sp := &segmentSpace{layers: pre.Layers, inSize: pre.Input.Size, degrees: degrees, opts: opts,
+	sp := &segmentSpace{layers: pre.Layers, inSize: pre.Input.Size, degrees: degrees, opts: opts, pin: pre.Pin,
 		starts: make([][]*segment, len(pre.Layers)), methods: map[methodKey]*segment{}}
 	for i, l := range pre.Layers {
 		switch {
@@ -127,9 +135,10 @@ func (sp *segmentSpace) lower(s *segment, D int) (*segProgram, error) {
 		}
 		layers = append(layers, &c)
 	}
-	// The input size only sets the period here: every layer reads a vector
-	// of its own In within it.
-	g := &ir.Graph{Name: "segment", SpecFile: "segment", Input: ir.Input{Name: "x", Size: D}, OutputName: "y", Layers: layers}
+	// The input sets the period (with the pin, which caps it where vectors
+	// are chunked) and, wider than the period, the number of chunks the
+	// first layer reads, as in the whole program.
+	g := &ir.Graph{Name: "segment", SpecFile: "segment", Input: ir.Input{Name: "x", Size: max(D, layers[0].In)}, OutputName: "y", Layers: layers, Pin: sp.pin}
 	st := &State{Source: g, Model: g, Graph: cloneGraph(g), Opts: sp.opts, Report: &Report{Dumps: map[string]string{}}}
 	st.Opts.KeepApart, st.Opts.Method = nil, nil
 	if s.method != "" {

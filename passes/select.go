@@ -100,32 +100,7 @@ func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Progra
 	}
 	se := &searcher{sp: newSegmentSpace(pre.Graph, pre.Report.Degrees, opts), prof: prof, obj: obj, final: st.Graph, cells: map[[2]int]*cell{}}
 	sols, misfits := se.search(constraint{})
-	type compiled struct {
-		sol  *solution
-		c    Candidate
-		prog *ir.Program
-		st   *State
-	}
-	var done []compiled
-	for _, sol := range sols {
-		c, p, s := se.compile(g, opts, sol)
-		done = append(done, compiled{sol, c, p, s})
-	}
-	exact := func(c Candidate) score {
-		if c.Err != nil {
-			return inf
-		}
-		return score{ms: c.EstMS, keys: int(min(c.KeyBytes, math.MaxInt32))}
-	}
-	slices.SortStableFunc(done, func(a, b compiled) int {
-		switch {
-		case better(exact(a.c), exact(b.c), obj):
-			return -1
-		case better(exact(b.c), exact(a.c), obj):
-			return 1
-		}
-		return 0
-	})
+	done := se.compileAll(g, opts, sols)
 	if len(done) == 0 || done[0].c.Err != nil {
 		// Nothing the search proposed compiles: keep the default
 		// compilation, which did, and say why.
@@ -133,12 +108,74 @@ func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Progra
 		return prog, st, nil, nil
 	}
 	best := done[0]
-	var cands []Candidate
-	for _, d := range done {
-		cands = append(cands, d.c)
+	// The runner-ups are compiled and priced exactly; where one beats the
+	// choice (the search's estimate of key bytes is an upper bound, and
+	// variants may move the noise gain), it becomes the choice. Under a key
+	// budget it is skipped: compiled costs then include the rotations the
+	// budget composes, which the search does not model, and the budget
+	// applies to the variants the search chose.
+	var chs []Choice
+	for range 8 {
+		var alts []compiled
+		chs, alts = se.choices(g, opts, best)
+		if opts.MaxKeyBytes > 0 {
+			break
+		}
+		improved := false
+		for _, a := range alts {
+			if better(se.exact(a.c), se.exact(best.c), obj) {
+				best, improved = a, true
+			}
+		}
+		if !improved {
+			break
+		}
 	}
-	best.st.Report.Choices = se.choices(g, opts, best.sol, best.c)
+	cands := []Candidate{best.c}
+	for _, d := range done {
+		if d.c.Variant != best.c.Variant {
+			cands = append(cands, d.c)
+		}
+	}
+	best.st.Report.Choices = chs
 	return best.prog, best.st, cands, nil
+}
+
+// compiled is a solution compiled and priced.
+type compiled struct {
+	sol  *solution
+	c    Candidate
+	prog *ir.Program
+	st   *State
+}
+
+// exact is a compiled candidate's score: its estimated ms and key bytes
+// (as a count, compared when the objective is keys).
+func (se *searcher) exact(c Candidate) score {
+	if c.Err != nil {
+		return inf
+	}
+	return score{ms: c.EstMS, keys: int(min(c.KeyBytes, math.MaxInt32))}
+}
+
+// compileAll compiles solutions and sorts them by their exact score,
+// the ones that do not compile last.
+func (se *searcher) compileAll(g *ir.Graph, opts Options, sols []*solution) []compiled {
+	var done []compiled
+	for _, sol := range sols {
+		c, p, s := se.compile(g, opts, sol)
+		done = append(done, compiled{sol, c, p, s})
+	}
+	slices.SortStableFunc(done, func(a, b compiled) int {
+		switch {
+		case better(se.exact(a.c), se.exact(b.c), se.obj):
+			return -1
+		case better(se.exact(b.c), se.exact(a.c), se.obj):
+			return 1
+		}
+		return 0
+	})
+	return done
 }
 
 // compile builds and prices one solution.
@@ -166,16 +203,23 @@ func (se *searcher) compile(g *ir.Graph, base Options, sol *solution) (Candidate
 	return c, p, s
 }
 
-// choices lists every decision of sol with its runner-up.
-func (se *searcher) choices(g *ir.Graph, opts Options, sol *solution, chosen Candidate) []Choice {
-	keys, val := se.decisions(sol)
+// choices lists every decision of the chosen solution with its
+// runner-up: under the constraint that excludes the decision, the search's
+// best solution of each period and depth are compiled and the exact best is
+// the runner-up. It returns the runner-ups compiled, too.
+func (se *searcher) choices(g *ir.Graph, opts Options, chosen compiled) ([]Choice, []compiled) {
+	keys, val := se.decisions(chosen.sol)
 	var out []Choice
+	var runnerUps []compiled
 	for _, k := range keys {
-		ch := Choice{Decision: k, Chosen: val[k], ChosenMS: chosen.EstMS, ChosenKeyBytes: chosen.KeyBytes}
-		alts, _ := se.search(se.forbidChoice(sol, k))
-		if len(alts) > 0 {
+		ch := Choice{Decision: k, Chosen: val[k], ChosenMS: chosen.c.EstMS, ChosenKeyBytes: chosen.c.KeyBytes}
+		sols, _ := se.search(se.forbidChoice(chosen.sol, k))
+		if len(sols) > maxRunnerUps {
+			sols = sols[:maxRunnerUps]
+		}
+		if alts := se.compileAll(g, opts, sols); len(alts) > 0 {
 			alt := alts[0]
-			akeys, aval := se.decisions(alt)
+			akeys, aval := se.decisions(alt.sol)
 			var diff []string
 			for _, ak := range akeys {
 				if ak != k && aval[ak] != val[ak] {
@@ -190,17 +234,22 @@ func (se *searcher) choices(g *ir.Graph, opts Options, sol *solution, chosen Can
 			default:
 				ch.RunnerUp = aval[k]
 			}
-			c, _, _ := se.compile(g, opts, alt)
-			if c.Err != nil {
-				ch.RunnerUpErr = c.Err.Error()
+			if alt.c.Err != nil {
+				ch.RunnerUpErr = alt.c.Err.Error()
 			} else {
-				ch.RunnerUpMS, ch.RunnerUpKeyBytes = c.EstMS, c.KeyBytes
+				ch.RunnerUpMS, ch.RunnerUpKeyBytes = alt.c.EstMS, alt.c.KeyBytes
+				runnerUps = append(runnerUps, alt)
 			}
 		}
 		out = append(out, ch)
 	}
-	return out
+	return out, runnerUps
 }
+
+// maxRunnerUps bounds the solutions compiled per decision to find its
+// runner-up: the search's best few (by its estimate), of different depths
+// or periods.
+const maxRunnerUps = 3
 
 // graphBefore runs the graph passes of the pipeline that come before the
 // pass named stop and returns their state.

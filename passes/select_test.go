@@ -3,11 +3,14 @@ package passes
 import (
 	"fmt"
 	"math"
+	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/require"
 
 	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/spec"
 )
 
 // banded is an n×n dense layer whose only nonzero diagonals are offsets.
@@ -264,4 +267,24 @@ func choiceOf(t *testing.T, st *State, decision string) Choice {
 	}
 	t.Fatalf("no choice %q among %+v", decision, st.Report.Choices)
 	return Choice{}
+}
+
+// On every testdata model (the digit classifier only without -short), the
+// selection agrees with brute force under both objectives.
+func TestSelectTestdataAgreesWithBruteForce(t *testing.T) {
+	specs, err := filepath.Glob("../testdata/*/*.yaml")
+	require.NoError(t, err)
+	require.NotEmpty(t, specs)
+	for _, path := range specs {
+		if strings.Contains(path, "/bad/") || (testing.Short() && strings.Contains(path, "/mnist/")) {
+			continue
+		}
+		t.Run(filepath.Base(path), func(t *testing.T) {
+			g, err := spec.Load(path)
+			require.NoError(t, err)
+			for _, obj := range []Objective{Latency, KeyBytes} {
+				checkSelectIsCheapest(t, g, obj)
+			}
+		})
+	}
 }

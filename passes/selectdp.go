@@ -54,10 +54,10 @@ type cell struct {
 // periods are the layout periods some choice of segments gives: the next
 // power of two of the widest of the input and the segments' outputs.
 func (se *searcher) periods() []int {
-	ps := []int{nextPow2(se.sp.inSize)}
+	ps := []int{se.sp.period(se.sp.inSize)}
 	for _, ss := range se.sp.starts {
 		for _, s := range ss {
-			if p := nextPow2(s.out); p > ps[0] && !slices.Contains(ps, p) {
+			if p := se.sp.period(s.out); p > ps[0] && !slices.Contains(ps, p) {
 				ps = append(ps, p)
 			}
 		}
@@ -66,9 +66,10 @@ func (se *searcher) periods() []int {
 	return ps
 }
 
-// fits reports whether segment s can be laid out at period D.
+// fits reports whether segment s can be laid out at period D (in chunks
+// of D where the period is capped).
 func (se *searcher) fits(s *segment, D int) bool {
-	return nextPow2(max(se.sp.layers[s.from].In, s.out)) <= D
+	return se.sp.period(max(se.sp.layers[s.from].In, s.out)) <= D
 }
 
 // params sizes the parameters for a program of the given depth and period
@@ -192,15 +193,16 @@ func (se *searcher) reachable(D, maxDepth int, depthOf map[*segment]int) []bool 
 			if !ok {
 				continue
 			}
-			walk(s.to+1, u+d, max(w, hits(s.out, D)))
+			walk(s.to+1, u+d, max(w, se.hits(s.out, D)))
 		}
 	}
-	walk(0, 0, hits(se.sp.inSize, D))
+	walk(0, 0, se.hits(se.sp.inSize, D))
 	return out
 }
 
-func hits(size, D int) int {
-	if nextPow2(size) == D {
+// hits is 1 when a vector of size values sets the period to D.
+func (se *searcher) hits(size, D int) int {
+	if se.sp.period(size) == D {
 		return 1
 	}
 	return 0
@@ -221,7 +223,7 @@ func (se *searcher) best(D, R int, pr ir.Params, depthOf map[*segment]int) *solu
 	for i := range best {
 		best[i] = make([][2]entry, R+1)
 	}
-	best[0][0][hits(se.sp.inSize, D)] = entry{ok: true}
+	best[0][0][se.hits(se.sp.inSize, D)] = entry{ok: true}
 	for i := range n {
 		for u := 0; u <= R; u++ {
 			for w := range 2 {
@@ -236,7 +238,7 @@ func (se *searcher) best(D, R int, pr ir.Params, depthOf map[*segment]int) *solu
 					}
 					lp := s.lowered[D]
 					sc := e.sc.add(score{ms: lp.price(se.prof, pr.LogN, top-u), keys: lp.rotations})
-					nw := max(w, hits(s.out, D))
+					nw := max(w, se.hits(s.out, D))
 					nx := &best[s.to+1][u+d][nw]
 					if !nx.ok || better(sc, nx.sc, se.obj) {
 						*nx = entry{ok: true, sc: sc, seg: s, pu: u, pw: w, prevFrom: i}
