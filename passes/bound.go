@@ -206,6 +206,20 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 					sums[k.sum] = append(sums[k.sum], d)
 				}
 			}
+			// distinct counts the distinct nonzero f(d) < D+1 over ds,
+			// with a generation stamp instead of a set per count.
+			stamp, gen := make([]int, D+1), 0
+			distinct := func(ds []int, f func(int) int) int {
+				gen++
+				n := 0
+				for _, d := range ds {
+					if v := f(d); v != 0 && stamp[v] != gen {
+						stamp[v] = gen
+						n++
+					}
+				}
+				return n
+			}
 			best := math.Inf(1)
 			for n1 := 1; n1 <= maxK+1; n1++ {
 				ms, nb, ng := 0.0, 0, 0
@@ -321,17 +335,6 @@ func foldMS(prof *Profile, logN, level, n int) (float64, int) {
 		}
 	}
 	return best, bestRots
-}
-
-// distinct counts the distinct nonzero values of f over ds.
-func distinct(ds []int, f func(int) int) int {
-	seen := map[int]bool{}
-	for _, d := range ds {
-		if v := f(d); v != 0 {
-			seen[v] = true
-		}
-	}
-	return len(seen)
 }
 
 func rescalesMS(prof *Profile, logN int, levels []int) float64 {

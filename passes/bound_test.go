@@ -1,14 +1,12 @@
 package passes
 
 import (
-	"path/filepath"
 	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/require"
 
 	"github.com/lanthorn/lanthorn/ir"
-	"github.com/lanthorn/lanthorn/spec"
 )
 
 // flatProfile prices every primitive the same at every level and ring
@@ -97,28 +95,6 @@ func TestBoundIsTheLayoutsNotTheLowerings(t *testing.T) {
 			}
 			require.LessOrEqual(t, bo.MS, programMS(opt, prof)*(1+1e-9))
 			require.LessOrEqual(t, bn.MS, programMS(naive, prof)*(1+1e-9))
-		})
-	}
-}
-
-// The bound reads every testdata program, optimised and naive.
-func TestBoundTestdata(t *testing.T) {
-	specs, err := filepath.Glob("../testdata/models/*.yaml")
-	require.NoError(t, err)
-	specs = append(specs, "../testdata/demo/gearbox.yaml", "../testdata/mnist/digits.yaml")
-	for _, path := range specs {
-		t.Run(filepath.Base(path), func(t *testing.T) {
-			g, err := spec.Load(path)
-			require.NoError(t, err)
-			prof := DefaultProfile()
-			for _, naive := range []bool{false, true} {
-				prog, _, err := Compile(g, Options{Naive: naive})
-				require.NoError(t, err)
-				b, err := LowerBound(prog, prof)
-				require.NoError(t, err)
-				require.Greater(t, b.MS, 0.0)
-				require.LessOrEqual(t, b.MS, programMS(prog, prof)*(1+1e-9), "naive %v: %s", naive, b)
-			}
 		})
 	}
 }

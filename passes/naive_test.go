@@ -75,11 +75,13 @@ func TestNaiveLowering(t *testing.T) {
 }
 
 // The naive lowering of every testdata spec compiles and simulates
-// correctly too (the benchmark builds them).
+// correctly too (the benchmark builds them), and the lower bound reads
+// both programs and stays at or below their own work.
 func TestNaiveTestdata(t *testing.T) {
 	specs, err := filepath.Glob("../testdata/models/*.yaml")
 	require.NoError(t, err)
 	specs = append(specs, "../testdata/demo/gearbox.yaml", "../testdata/mnist/digits.yaml")
+	prof := DefaultProfile()
 	for _, path := range specs {
 		t.Run(filepath.Base(path), func(t *testing.T) {
 			g, err := spec.Load(path)
@@ -96,6 +98,15 @@ func TestNaiveTestdata(t *testing.T) {
 			got, err := prog.Simulate(x)
 			require.NoError(t, err)
 			require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
+
+			opt, _, err := Compile(g, Options{})
+			require.NoError(t, err)
+			for _, p := range []*ir.Program{opt, prog} {
+				b, err := LowerBound(p, prof)
+				require.NoError(t, err)
+				require.Greater(t, b.MS, 0.0)
+				require.LessOrEqual(t, b.MS, programMS(p, prof)*(1+1e-9), "%s: %s", p.Layers[0].Kind, b)
+			}
 		})
 	}
 }
