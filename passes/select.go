@@ -3,7 +3,6 @@ package passes
 import (
 	"errors"
 	"fmt"
-	"math"
 	"slices"
 	"strings"
 
@@ -149,13 +148,13 @@ type compiled struct {
 	st   *State
 }
 
-// exact is a compiled candidate's score: its estimated ms and key bytes
-// (as a count, compared when the objective is keys).
+// exact is a compiled candidate's score: its estimated ms and its
+// evaluation-key bytes (compared when the objective is keys).
 func (se *searcher) exact(c Candidate) score {
 	if c.Err != nil {
 		return inf
 	}
-	return score{ms: c.EstMS, keys: int(min(c.KeyBytes, math.MaxInt32))}
+	return score{ms: c.EstMS, keys: c.KeyBytes}
 }
 
 // compileAll compiles solutions and sorts them by their exact score,

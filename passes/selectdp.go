@@ -8,12 +8,13 @@ import (
 	"github.com/lanthorn/lanthorn/ir"
 )
 
-// score is what the search compares: estimated ms, and a count of rotation
-// keys (the sum over segments, an upper bound of the distinct rotations the
-// compiled program needs) for the key-size objective.
+// score is what the search compares: estimated ms and, for the key-size
+// objective, keys: in the search a count of rotation keys (the sum over
+// segments, an upper bound of the distinct rotations the compiled program
+// needs), for compiled candidates their key bytes.
 type score struct {
 	ms   float64
-	keys int
+	keys int64
 }
 
 func (a score) add(b score) score { return score{a.ms + b.ms, a.keys + b.keys} }
@@ -237,7 +238,7 @@ func (se *searcher) best(D, R int, pr ir.Params, depthOf map[*segment]int) *solu
 						continue
 					}
 					lp := s.lowered[D]
-					sc := e.sc.add(score{ms: lp.price(se.prof, pr.LogN, top-u), keys: lp.rotations})
+					sc := e.sc.add(score{ms: lp.price(se.prof, pr.LogN, top-u), keys: int64(lp.rotations)})
 					nw := max(w, se.hits(s.out, D))
 					nx := &best[s.to+1][u+d][nw]
 					if !nx.ok || better(sc, nx.sc, se.obj) {
@@ -344,4 +345,4 @@ func (se *searcher) forbidChoice(sol *solution, key string) constraint {
 }
 
 // inf is the score of nothing.
-var inf = score{ms: math.Inf(1), keys: math.MaxInt}
+var inf = score{ms: math.Inf(1), keys: math.MaxInt64}
