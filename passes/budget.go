@@ -162,8 +162,10 @@ func leastKeys(fixed, steps int) string {
 		return "the relinearization key and one rotation key"
 	case fixed == 1:
 		return "the relinearization key"
-	default:
+	case steps > 0:
 		return "one rotation key"
+	default:
+		return "no key, only the file's framing"
 	}
 }
 
