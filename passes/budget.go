@@ -99,7 +99,7 @@ func keyBudget(s *State) error {
 	cost := func(set []int) float64 { return g.cost(set, uses, sums, prof, p.Params.LogN) }
 	keys := chooseKeys(cands, room, p.Period, cost)
 	est := func(set []int) float64 { return cost(set) / 1e6 }
-	saved := est(keys)
+	extraMS := est(keys) - est(steps)
 	g.search(keys)
 	for _, u := range rotationUses(p) {
 		for _, k := range u.steps {
@@ -110,11 +110,10 @@ func keyBudget(s *State) error {
 	}
 	nested := nestSums(p, g, sums)
 	composeRotations(p, g, rotationUses(p))
-	rep.Steps = keys
+	rep.Steps = usedSteps(p) // the keys the rewritten program uses, a subset of keys
 	rep.Added = rotationCount(p) - rotationCount(exact)
-	added := rep.Added
 	s.note("key budget %.1f MB: %d rotation keys %v instead of %d (%.1f MB instead of %.1f MB); %d rotations composed from them, %d key switches more, about %.1f ms more (estimated)",
-		mb(limit), len(keys), keys, len(steps), mb(size(len(keys))), mb(size(len(steps))), rep.Composed, added, saved-est(steps))
+		mb(limit), len(rep.Steps), rep.Steps, len(steps), mb(size(len(rep.Steps))), mb(size(len(steps))), rep.Composed, rep.Added, extraMS)
 	if nested > 0 {
 		s.note("key budget: %d sums of rotations nested (Σ rot_k(b) as b1 + rot(b2 + rot(…)), so that they rotate by the differences of their steps", nested)
 	}
