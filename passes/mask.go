@@ -18,10 +18,11 @@ const unpadHow = "p(0) subtracted in the padding slots"
 // maskSamples is the number of random inputs on which slots are classified.
 const maskSamples = 3
 
-// maskOutput makes the result ciphertext hold only the declared outputs.
-// Every slot of the period beyond the n outputs must be zero or a copy of
-// output t mod B (B = nextPow2(n)): the block method leaves such copies,
-// and they reveal nothing beyond the outputs. Any other slot — a partial
+// maskOutput makes the result ciphertexts hold only the declared outputs.
+// Every slot of the period beyond a ciphertext's outputs must be zero or
+// equal to one of the outputs: the block method leaves copies of the
+// outputs with period nextPow2(outputs), and they reveal nothing beyond the
+// outputs. Any other slot — a partial
 // sum of the last linear layer, or p(0) of a final activation in padding
 // slots — would tell the client more of the model than its outputs, and is
 // zeroed, in the cheapest of three ways:
@@ -76,8 +77,12 @@ func maskOutput(s *State) error {
 		for _, t := range leaks[j] {
 			keep[t] = 0
 		}
+		name := last.Name + ".mask"
+		if len(outs) > 1 {
+			name += fmt.Sprint(j)
+		}
 		switch {
-		case unpadPoly(p, out, leaks[j], xs):
+		case unpadPoly(p, out, leaks[j], xs, j, len(outs)):
 			hows = append(hows, unpadHow)
 		case foldMask(p, out, keep):
 			hows = append(hows, "mask folded into the last plaintext products")
@@ -85,7 +90,7 @@ func maskOutput(s *State) error {
 			v := insertAfterDef(p, out, ir.OpMulPlain, "Masked", nil)
 			op := p.Def(v)
 			op.Const = len(p.Consts)
-			p.Consts = append(p.Consts, &ir.Const{Name: last.Name + ".mask", Kind: ir.Vector, Data: keep})
+			p.Consts = append(p.Consts, &ir.Const{Name: name, Kind: ir.Vector, Data: keep})
 			last.PlainMuls++
 			levels = true
 			hows = append(hows, "a plaintext product by a 0/1 mask")
@@ -225,7 +230,7 @@ func largestAbs(v []float64) float64 {
 // unpadPoly handles a result made by a polynomial whose input is zero in
 // every leaking slot: those slots hold p(0), and adding −p(0) there makes
 // them zero (the other slots are untouched).
-func unpadPoly(p *ir.Program, out ir.ValueID, leaks []int, xs [][]float64) bool {
+func unpadPoly(p *ir.Program, out ir.ValueID, leaks []int, xs [][]float64, chunk, chunks int) bool {
 	def := p.Def(out)
 	if def == nil || def.Kind != ir.OpPoly {
 		return false
@@ -251,7 +256,11 @@ func unpadPoly(p *ir.Program, out ir.ValueID, leaks []int, xs [][]float64) bool 
 	v := insertAfterDef(p, out, ir.OpAddPlain, "Unpadded", nil)
 	op := p.Def(v)
 	op.Const = len(p.Consts)
-	p.Consts = append(p.Consts, &ir.Const{Name: p.Layers[def.Layer].Name + ".unpad", Kind: ir.Vector, Data: fix})
+	name := p.Layers[def.Layer].Name + ".unpad"
+	if chunks > 1 {
+		name += fmt.Sprint(chunk)
+	}
+	p.Consts = append(p.Consts, &ir.Const{Name: name, Kind: ir.Vector, Data: fix})
 	return true
 }
 

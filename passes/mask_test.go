@@ -189,3 +189,36 @@ func TestMaskTestdata(t *testing.T) {
 		})
 	}
 }
+
+// A result in two ciphertexts is masked ciphertext by ciphertext, each in
+// its own way, with constants of distinct names.
+func TestMaskPerOutputCiphertext(t *testing.T) {
+	h, x := newHand(4, 2, 8)
+	h.p.Output = ir.PackedLayout(6, 4, 8) // 4 outputs in the first ciphertext, 2 in the second
+	a := h.poly(partialSums(h, x), []float64{0, 1, 0.5})
+	b := partialSums(h, x)
+	h.p.Ops = append(h.p.Ops, &ir.Op{Kind: ir.OpOutput, Args: []ir.ValueID{a, b}, Const: -1, Layer: 0})
+	in := randomInput(4, 4)
+	full := func() [][]float64 {
+		q := *h.p
+		q.Output = ir.PackedLayout(16, 8, 8)
+		y, err := q.Simulate(in)
+		require.NoError(t, err)
+		return [][]float64{y[:8], y[8:]}
+	}
+	before := full()
+	st := h.state()
+	require.NoError(t, maskOutput(st))
+	after := full()
+	for j, n := range []int{4, 2} {
+		require.Equal(t, before[j][:n], after[j][:n], "ciphertext %d outputs", j)
+		requireOnlyOutputs(t, after[j], n)
+	}
+	names := map[string]bool{}
+	for _, c := range h.p.Consts {
+		require.False(t, names[c.Name] && strings.Contains(c.Name, "mask"), "constant %s twice", c.Name)
+		names[c.Name] = true
+	}
+	require.True(t, names["last.mask0"], "the first ciphertext needs the product mask")
+	require.Contains(t, strings.Join(st.Report.Notes, "\n"), "zeroed by a plaintext product by a 0/1 mask; mask folded into the last plaintext products")
+}
