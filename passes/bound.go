@@ -15,9 +15,9 @@ import (
 const BoundDefinition = `lower bound: the work that the compiled program's layout cannot avoid, at the program's own levels,
 priced with primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its
 layout (of the blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions; rotations
-as the cheapest baby-step giant-step split of K over every baby-step count n1 (baby steps k mod n1 share the
-input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and are priced as
-full rotations); a blocked layer's sum of D/B shifted copies priced as the cheapest staging of hoisted sets
+as the cheapest baby-step giant-step split of K over every baby-step count n1, in either orientation (baby
+steps k mod n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct
+sums and are priced as full rotations; or the roles of the two swapped); a blocked layer's sum of D/B shifted copies priced as the cheapest staging of hoisted sets
 (log2(D/B) single rotations at most); one rescale per level at which it multiplies. Per ciphertext product one
 product with its relinearization and one rescale; per polynomial of degree d, ceil(log2 d) such products
 (each at most doubles the degree) and one rescale per level it consumes. A hoisted set of r rotations costs
@@ -40,9 +40,13 @@ type BoundLayer struct {
 	Layer     string
 	Diagonals int // plaintext products: nonzero diagonals of the layout
 	// BabySteps and GiantSteps are the rotations of the cheapest split
-	// (baby steps hoisted), at baby-step count Split; Folds are the
-	// rotations of the cheapest staging of a blocked layer's sum.
+	// at baby-step count Split: BabySteps rotate the inputs in hoisted
+	// sets, GiantSteps rotate sums. Transposed says the split hoists the
+	// input rotations by multiples of Split and rotates the sums by the
+	// remainders. Folds are the rotations of the cheapest staging of a
+	// blocked layer's sum.
 	Split, BabySteps, GiantSteps, Folds int
+	Transposed                          bool
 	Relins, Rescales                    int
 	MS                                  float64
 }
@@ -64,10 +68,12 @@ type BoundLayer struct {
 //   - one plaintext product per diagonal and |K|-1 additions, at the level
 //     of the products;
 //   - rotations: min over n1 in [1, max K + 1] of hoisted(|I|) + |J|·rot,
-//     with I the nonzero k mod n1 and J the nonzero k div n1 of every
-//     diagonal k of the layer (the union over inputs of J when several input
-//     ciphertexts feed one sum, whose giant rotation is then shared), at the
-//     level of the layer's input;
+//     with I the nonzero k mod n1 of each input ciphertext's diagonals (its
+//     hoisted baby steps) and J the nonzero k div n1 of each sum's (its
+//     giant steps, one rotation each, shared by the inputs the sum adds up),
+//     and of the transposed split with the roles of k mod n1 and k div n1
+//     swapped (inputs rotated by n1·(k div n1) in one hoisted set, sums by
+//     k mod n1), at the level of the layer's input;
 //   - the fold of n = D/B copies: min over n = a·m of hoisted(a−1) plus the
 //     fold of m copies (rotate-and-sum by halves at most), at the level of
 //     the program's fold;
@@ -221,19 +227,31 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 				return n
 			}
 			best := math.Inf(1)
-			for n1 := 1; n1 <= maxK+1; n1++ {
-				ms, nb, ng := 0.0, 0, 0
-				for _, base := range baseOrder { // one hoisted set per input
-					r := distinct(bases[base], func(d int) int { return d % n1 })
-					ms += hoistedMS(prof, logN, l, r)
-					nb += r
-				}
-				for _, sum := range sumOrder { // one rotation per giant step of each sum
-					ng += distinct(sums[sum], func(d int) int { return d / n1 })
-				}
-				ms += float64(ng) * cost(CostRotate, l)
-				if ms < best {
-					best, bl.Split, bl.BabySteps, bl.GiantSteps = ms, n1, nb, ng
+			// The usual split hoists the input rotations by k mod n1 and
+			// rotates each sum by k − k mod n1; the transposed one hoists
+			// the input rotations by n1·(k div n1) and rotates each sum by
+			// k mod n1. Ties go to the usual split and the smallest n1.
+			forms := []struct {
+				input, sum func(d, n1 int) int
+			}{
+				{func(d, n1 int) int { return d % n1 }, func(d, n1 int) int { return d / n1 }},
+				{func(d, n1 int) int { return d / n1 }, func(d, n1 int) int { return d % n1 }},
+			}
+			for form, f := range forms {
+				for n1 := 1; n1 <= maxK+1; n1++ {
+					ms, nb, ng := 0.0, 0, 0
+					for _, base := range baseOrder { // one hoisted set per input
+						r := distinct(bases[base], func(d int) int { return f.input(d, n1) })
+						ms += hoistedMS(prof, logN, l, r)
+						nb += r
+					}
+					for _, sum := range sumOrder { // one rotation per step of each sum
+						ng += distinct(sums[sum], func(d int) int { return f.sum(d, n1) })
+					}
+					ms += float64(ng) * cost(CostRotate, l)
+					if ms < best {
+						best, bl.Split, bl.BabySteps, bl.GiantSteps, bl.Transposed = ms, n1, nb, ng, form == 1
+					}
 				}
 			}
 			bl.MS += best
@@ -354,7 +372,11 @@ func (b *Bound) String() string {
 		}
 		s := fmt.Sprintf("%s: %d products", l.Layer, l.Diagonals)
 		if l.BabySteps+l.GiantSteps > 0 {
-			s += fmt.Sprintf(", %d+%d rotations (n1=%d)", l.BabySteps, l.GiantSteps, l.Split)
+			t := ""
+			if l.Transposed {
+				t = ", transposed"
+			}
+			s += fmt.Sprintf(", %d+%d rotations (n1=%d%s)", l.BabySteps, l.GiantSteps, l.Split, t)
 		}
 		if l.Folds > 0 {
 			s += fmt.Sprintf(", %d fold rotations", l.Folds)
