@@ -96,6 +96,14 @@ func keyBudget(s *State) error {
 	cands = slices.Compact(cands)
 	prof := DefaultProfile()
 	g := newStepGraph(p.Period)
+	var targets []int
+	for _, u := range rotationUses(p) {
+		targets = append(targets, u.steps...)
+	}
+	for _, r := range sums {
+		targets = append(targets, r.nested()...)
+	}
+	g.aim(targets)
 	cost := func(set []int) float64 { return g.cost(set, uses, sums, prof, p.Params.LogN) }
 	keys := chooseKeys(cands, room, p.Period, cost)
 	est := func(set []int) float64 { return cost(set) / 1e6 }
@@ -226,10 +234,14 @@ func rotationUses(p *ir.Program) []rotationUse {
 // path found to a step is kept.
 type stepGraph struct {
 	D      int
-	dist   []int // hops from 0; -1 unreachable
+	dist   []int // hops from 0; -1 unreachable (or not searched)
 	parent []int // node before, on the kept path
 	via    []int // key step from parent
 	queue  []int
+	// targets, when set, are the steps the search must reach; it stops
+	// once it has reached them all.
+	targets []int
+	target  []bool
 }
 
 func newStepGraph(D int) *stepGraph {
@@ -242,14 +254,35 @@ func (g *stepGraph) search(keys []int) {
 	}
 	g.dist[0] = 0
 	g.queue = append(g.queue[:0], 0)
+	left := len(g.targets)
 	for h := 0; h < len(g.queue); h++ {
 		u := g.queue[h]
 		for _, k := range keys {
-			v := (u + k) % g.D
+			v := u + k
+			if v >= g.D {
+				v -= g.D // keys lie in (0, D)
+			}
 			if g.dist[v] < 0 {
 				g.dist[v], g.parent[v], g.via[v] = g.dist[u]+1, u, k
 				g.queue = append(g.queue, v)
+				if g.target != nil && g.target[v] {
+					if left--; left == 0 {
+						return
+					}
+				}
 			}
+		}
+	}
+}
+
+// aim makes later searches stop once they reach every step given.
+func (g *stepGraph) aim(steps []int) {
+	g.target = make([]bool, g.D)
+	g.targets = nil
+	for _, k := range steps {
+		if k > 0 && k < g.D && !g.target[k] {
+			g.target[k] = true
+			g.targets = append(g.targets, k)
 		}
 	}
 }

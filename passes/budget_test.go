@@ -38,7 +38,8 @@ func fileBytes(p *ir.Program) int64 {
 // Under a tight budget (room for about a third of the exact rotation keys,
 // at least one) every testdata program still agrees exactly with the
 // float64 reference in simulation, passes the verifier after every pass
-// (Compile runs it), and needs no more key bytes than the budget.
+// (Compile runs it), needs no more key bytes than the budget, and compiles
+// to the same program twice.
 func TestBudgetTestdata(t *testing.T) {
 	for _, path := range budgetSpecs(t) {
 		t.Run(filepath.Base(path), func(t *testing.T) {
@@ -54,6 +55,9 @@ func TestBudgetTestdata(t *testing.T) {
 			limit := keyFileBytes(exact.Params, room, exact.Relinearize) + per/2
 			prog, bst, err := Compile(g, Options{MaxKeyBytes: limit})
 			require.NoError(t, err)
+			again, _, err := Compile(g, Options{MaxKeyBytes: limit})
+			require.NoError(t, err)
+			require.Equal(t, prog.String(), again.String(), "deterministic")
 			require.LessOrEqual(t, len(prog.Rotations), room)
 			require.LessOrEqual(t, fileBytes(prog), limit, "the budget is respected")
 			rep := bst.Report.Budget
