@@ -33,9 +33,10 @@ import (
 //     has run, as in the sequential run. Lattigo evaluators are made only
 //     as workers need them, at most Threads of them.
 //
-// Workers exist only while there is work: a worker leaves when no task is
-// ready, so an Evaluator leaves no goroutine behind and needs no Close.
-// Err (and everything that reads a ciphertext) waits for the work.
+// Workers exist only while there is work: a worker with no ready task waits
+// while some task is pending (its arguments still computing), and leaves
+// when none is, so an Evaluator leaves no goroutine behind and needs no
+// Close. Err (and everything that reads a ciphertext) waits for the work.
 
 // lane is the lattigo state one goroutine computes with.
 type lane struct {
@@ -74,10 +75,12 @@ type pool struct {
 
 	mu      sync.Mutex
 	idle    sync.Cond // broadcast when no task is pending and no worker runs
+	more    sync.Cond // signalled when a task becomes ready or none is pending
 	ready   taskHeap
 	pending int // tasks submitted and not finished
 	workers int // worker goroutines alive
 	busy    int // workers running a task
+	waiting int // workers waiting on more
 	free    []*lane
 	lanes   int // lanes made
 
@@ -88,6 +91,7 @@ type pool struct {
 func newPool(p *Params, base *lane, threads int) *pool {
 	q := &pool{p: p, threads: threads, base: base.ev, free: []*lane{base}, lanes: 1}
 	q.idle.L = &q.mu
+	q.more.L = &q.mu
 	return q
 }
 
@@ -135,9 +139,12 @@ func (q *pool) submit(t *task, args ...*Ciphertext) {
 	}
 }
 
-// spawn starts workers for the ready tasks that no worker is about to
-// take, up to threads. Called with mu held.
+// spawn wakes waiting workers and starts new ones, up to threads, for the
+// ready tasks that no worker is about to take. Called with mu held.
 func (q *pool) spawn() {
+	for i := 0; i < min(q.waiting, len(q.ready)); i++ {
+		q.more.Signal()
+	}
 	for q.workers < q.threads && q.workers-q.busy < len(q.ready) {
 		var l *lane
 		if n := len(q.free); n > 0 {
@@ -150,8 +157,8 @@ func (q *pool) spawn() {
 	}
 }
 
-// work runs ready tasks until none is left. A nil l is made here, as a
-// ShallowCopy of the base evaluator.
+// work runs ready tasks until no task is pending. A nil l is made here, as
+// a ShallowCopy of the base evaluator.
 func (q *pool) work(l *lane) {
 	var made error
 	if l == nil {
@@ -161,7 +168,15 @@ func (q *pool) work(l *lane) {
 		}()
 	}
 	q.mu.Lock()
-	for len(q.ready) > 0 {
+	for {
+		for len(q.ready) == 0 && q.pending > 0 {
+			q.waiting++
+			q.more.Wait()
+			q.waiting--
+		}
+		if len(q.ready) == 0 {
+			break
+		}
 		t := heap.Pop(&q.ready).(*task)
 		skip := q.err != nil && q.errSeq < t.seq
 		q.busy++
@@ -225,8 +240,11 @@ func (q *pool) finish(t *task, more []*task) {
 	}
 	q.pending--
 	q.spawn()
-	if q.pending == 0 && q.workers == 0 {
-		q.idle.Broadcast()
+	if q.pending == 0 {
+		q.more.Broadcast() // waiting workers leave
+		if q.workers == 0 {
+			q.idle.Broadcast()
+		}
 	}
 }
 
