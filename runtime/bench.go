@@ -136,7 +136,7 @@ func (c *cli) bench(args []string) error {
 		keysHow = "read from " + *keys
 	}
 	w := bufio.NewWriter(c.stdout)
-	fmt.Fprintf(w, "%s bench: %d runs after 1 warm-up, %d threads (GOMAXPROCS %d)%s\n", c.info.Name, out.Runs, out.Threads, goruntime.GOMAXPROCS(0), c.insecureSuffix())
+	fmt.Fprintf(w, "%s bench: %d runs after 1 warm-up, %s (GOMAXPROCS %d)%s\n", c.info.Name, out.Runs, threadsText(out.Threads), goruntime.GOMAXPROCS(0), c.insecureSuffix())
 	fmt.Fprintf(w, "  latency of one encrypted evaluation: %s ms median, %s min, %s max\n", fmtMS(out.MedianMS), fmtMS(out.MinMS), fmtMS(out.MaxMS))
 	fmt.Fprintf(w, "  evaluation keys:                     %.1f MB (%d rotation keys), %s in %s ms\n", out.KeysMB, len(c.info.Keys.Rotations), keysHow, fmtMS(out.KeygenMS))
 	fmt.Fprintf(w, "  weight encoding (Load):              %s ms, once per process\n", fmtMS(out.LoadMS))

@@ -395,7 +395,7 @@ func (c *cli) eval(args []string) error {
 	if err := WriteCiphertexts(*out, p, res); err != nil {
 		return err
 	}
-	fmt.Fprintf(c.stderr, "evaluated in %s on %d threads (weights encoded in %s); wrote %s%s\n", took.Round(time.Millisecond), ev.Threads(), prep.Round(time.Millisecond), *out, c.insecureSuffix())
+	fmt.Fprintf(c.stderr, "evaluated in %s on %s (weights encoded in %s); wrote %s%s\n", took.Round(time.Millisecond), threadsText(ev.Threads()), prep.Round(time.Millisecond), *out, c.insecureSuffix())
 	return nil
 }
 
@@ -570,8 +570,8 @@ func (c *cli) selftest(args []string) error {
 		c.info.Name, p.Spec().LogN, p.MaxLevel(), len(c.info.Keys.Rotations), float64(evk.Size())/1e6, c.insecureSuffix())
 	fmt.Fprintf(w, "  precision vs float64 model (as encrypted):   max abs error %.3g (%.1f bits; target %d) over %d inputs\n", worst.MaxAbsErr, worst.Bits, c.info.Precision, *n)
 	fmt.Fprintf(w, "  deviation from exact activations:            max abs error %.3g (%.1f bits)\n", worstExact.MaxAbsErr, worstExact.Bits)
-	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d on %d threads (keygen %s, weight encoding %s)\n",
-		median.Round(100*time.Microsecond), len(times), ev.Threads(), keygen.Round(time.Millisecond), prep.Round(time.Millisecond))
+	fmt.Fprintf(w, "  latency of one encrypted evaluation:         %s median of %d on %s (keygen %s, weight encoding %s)\n",
+		median.Round(100*time.Microsecond), len(times), threadsText(ev.Threads()), keygen.Round(time.Millisecond), prep.Round(time.Millisecond))
 	if err := w.Flush(); err != nil {
 		return err
 	}
