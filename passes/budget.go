@@ -109,6 +109,11 @@ func keyBudget(s *State) error {
 	est := func(set []int) float64 { return cost(set) / 1e6 }
 	extraMS := est(keys) - est(steps)
 	g.search(keys)
+	for _, k := range targets {
+		if g.dist[k] < 0 {
+			return fmt.Errorf("internal error: key budget: keys %v do not reach step %d", keys, k)
+		}
+	}
 	for _, u := range rotationUses(p) {
 		for _, k := range u.steps {
 			if g.dist[k] != 1 {
@@ -312,8 +317,10 @@ func (g *stepGraph) hops(steps []int) int {
 }
 
 // unreachablePenalty prices a step the keys cannot reach as this many
-// rotations, more than any chain, so the greedy choice first reaches all.
-func (g *stepGraph) unreachablePenalty() int { return 2 * g.D }
+// rotations: far more than all the chains of any program together, so that
+// a key set that reaches every step always costs less than one that does
+// not (the key 1 reaches every step).
+func (g *stepGraph) unreachablePenalty() int { return 1 << 40 }
 
 // cost is the estimated time in nanoseconds of every rotation of the
 // program when its steps are chains of the given keys: a plain rotation

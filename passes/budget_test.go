@@ -316,3 +316,16 @@ func TestNestSums(t *testing.T) {
 	got := fullSlots(t, h.p, in)
 	require.InDeltaSlice(t, want, got, 1e-12)
 }
+
+// A key set that leaves a step unreachable is never chosen, however cheap
+// it makes the other steps: 100 rotations by 8 at a high level and one by
+// 1 at level 0, with room for one key, take the key 1.
+func TestChooseKeysReachesEveryStep(t *testing.T) {
+	uses := []rotationUse{{steps: []int{1}, level: 0}}
+	for range 100 {
+		uses = append(uses, rotationUse{steps: []int{8}, level: 9})
+	}
+	g := newStepGraph(16)
+	cost := func(set []int) float64 { return g.cost(set, uses, nil, DefaultProfile(), 13) }
+	require.Equal(t, []int{1}, chooseKeys([]int{1, 8}, 1, 16, cost))
+}
