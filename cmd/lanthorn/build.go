@@ -28,6 +28,8 @@ type programFlags struct {
 	objective *string
 	// maxKeysMB bounds the evaluation keys (keybudget.go).
 	maxKeysMB *float64
+	// chunk caps the values of one ciphertext (chunk.go).
+	chunk *int
 }
 
 func addProgramFlags(fs *flag.FlagSet) programFlags {
@@ -39,6 +41,7 @@ func addProgramFlags(fs *flag.FlagSet) programFlags {
 			"the regenerate line in the headers does not name it"),
 		objective: objectiveFlag(fs),
 		maxKeysMB: keyBudgetFlag(fs),
+		chunk:     chunkFlag(fs),
 	}
 }
 
@@ -68,6 +71,9 @@ func runBuild(args []string, stdout, stderr io.Writer) error {
 	}
 	popts := passes.Options{Naive: *pf.naive, Objective: obj}
 	if popts.MaxKeyBytes, err = keyBudgetBytes(*pf.maxKeysMB); err != nil {
+		return err
+	}
+	if popts.ChunkSlots, err = chunkSlots(*pf.chunk); err != nil {
 		return err
 	}
 	if *dump != "" {

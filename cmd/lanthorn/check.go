@@ -59,7 +59,11 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
-	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj, MaxKeyBytes: budget})
+	chunk, err := chunkSlots(*pf.chunk)
+	if err != nil {
+		return &exitError{code: 2, err: err}
+	}
+	files, _, err := generate(pos[0], *pf.out, *pf.module, passes.Options{Naive: *pf.naive, Objective: obj, MaxKeyBytes: budget, ChunkSlots: chunk})
 	if err != nil {
 		return &exitError{code: 2, err: err}
 	}
@@ -79,6 +83,9 @@ func runCheck(args []string, stdout, stderr io.Writer) error {
 	}
 	if budget > 0 {
 		cmd += fmt.Sprintf(" -max-keys-mb %g", *pf.maxKeysMB)
+	}
+	if chunk > 0 {
+		cmd += fmt.Sprintf(" -chunk-slots %d", chunk)
 	}
 	if len(diffs) == 0 {
 		fmt.Fprintf(stdout, "%s is up to date: its %d files are what %s writes\n", *pf.out, len(files), cmd)

@@ -19,8 +19,9 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 		"eager relinearization), the benchmark's yardstick")
 	objective := objectiveFlag(fs)
 	maxKeysMB := keyBudgetFlag(fs)
+	chunk := chunkFlag(fs)
 	fs.Usage = func() {
-		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive] [-objective latency|keys] [-max-keys-mb MB]\n\n"+
+		fmt.Fprintf(stderr, "Usage: lanthorn plan SPEC [-format text|md|json] [-profile FILE] [-naive] [-objective latency|keys] [-max-keys-mb MB] [-chunk-slots N]\n\n"+
 			"Compiles SPEC and prints its plan: the parameters and why, a row per layer\n"+
 			"(levels, rotations, key switches, products, rescales, estimated time),\n"+
 			"totals, evaluation keys and ciphertext sizes. Writes no files.\n\nFlags:\n")
@@ -50,7 +51,11 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive, Objective: obj, MaxKeyBytes: budget}, prof, obj)
+	slots, err := chunkSlots(*chunk)
+	if err != nil {
+		return err
+	}
+	_, st, cands, err := passes.Select(g, passes.Options{Naive: *naive, Objective: obj, MaxKeyBytes: budget, ChunkSlots: slots}, prof, obj)
 	if err != nil {
 		return err
 	}
