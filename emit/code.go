@@ -113,9 +113,10 @@ func (e *emitter) params() ([]byte, error) {
 		{"ModelID", jen.Lit(e.modelID)},
 	}))
 	f.Line()
-	comment(f.Comment, "Keys lists the evaluation keys the server needs: a Galois key for each rotation\nstep the program uses, and the relinearization key if it multiplies ciphertexts.")
+	comment(f.Comment, "Keys lists the evaluation keys the server needs: a Galois key for each rotation\nstep the program uses, made for the highest level it rotates at (Levels, in the\nsame order), and the relinearization key if it multiplies ciphertexts.")
 	f.Var().Id("Keys").Op("=").Add(e.rtQual("KeyRequest")).Add(multiline([]field{
 		{"Rotations", intList(p.Rotations)},
+		{"Levels", intList(p.RotationLevels)},
 		{"Relinearize", jen.Lit(p.Relinearize)},
 	}))
 	f.Line()

@@ -132,6 +132,12 @@ type Layer struct {
 
 	// Linear: the sparse matrix.
 	Map *SparseMap
+	// RowBlock, when positive, says the rows of a Linear layer that reads
+	// the model's input come in blocks of RowBlock slots, one block per
+	// output channel, each block at least as long as the input (a spread
+	// convolution): the lowering may then read a copy of the input per
+	// block (see passes.inputCopies).
+	RowBlock int
 
 	// Activation.
 	Act *Act

@@ -31,8 +31,11 @@ type Program struct {
 	Consts []*Const // plaintext vectors and polynomials, in first-use order
 	Layers []*LayerInfo
 
-	Rotations   []int // exact set of rotation steps used, ascending
-	Relinearize bool  // a relinearization key is needed
+	Rotations []int // exact set of rotation steps used, ascending
+	// RotationLevels[i] is the highest level the program rotates by
+	// Rotations[i] at: the level its key is made for.
+	RotationLevels []int
+	Relinearize    bool // a relinearization key is needed
 }
 
 // Params are the CKKS parameters the program runs under.

@@ -261,6 +261,20 @@ func VerifyProgram(p *Program, stage Stage) error {
 		slices.Sort(want)
 		if !slices.Equal(want, p.Rotations) {
 			errs = append(errs, fmt.Errorf("rotation keys %v, program uses %v", p.Rotations, want))
+		} else if len(p.RotationLevels) != len(p.Rotations) {
+			errs = append(errs, fmt.Errorf("%d rotation key levels for %d keys", len(p.RotationLevels), len(p.Rotations)))
+		} else {
+			for _, op := range p.Ops {
+				if op.Kind != OpRotate && op.Kind != OpRotHoisted {
+					continue
+				}
+				for _, s := range op.Steps {
+					i, _ := slices.BinarySearch(p.Rotations, s)
+					if at := p.Values[op.Args[0]].Level; at > p.RotationLevels[i] {
+						errs = append(errs, fmt.Errorf("%s: rotates at level %d, its key is made for level %d", p.FormatOp(op), at, p.RotationLevels[i]))
+					}
+				}
+			}
 		}
 	}
 	return errors.Join(errs...)

@@ -137,6 +137,7 @@ func compose(first, second *ir.Layer) *ir.Layer {
 		Name: first.Name + "_" + second.Name, Kind: ir.Linear, Pos: first.Pos,
 		In: first.In, Out: second.Out, InShape: slices.Clone(first.InShape), OutShape: slices.Clone(second.OutShape),
 		Map: c, Bias: bias, From: append(origins(first), origins(second)...),
+		RowBlock: keepBlocks(first, second),
 	}
 }
 
@@ -151,4 +152,14 @@ func origins(l *ir.Layer) []string {
 // describeLinear is the trace-comment kind of a linear layer.
 func describeLinear(l *ir.Layer) string {
 	return fmt.Sprintf("linear %d→%d from %s", l.In, l.Out, strings.Join(origins(l), " · "))
+}
+
+// keepBlocks is the row blocking of second∘first: that of first when
+// second acts on each value alone (a batch norm or scaling after a spread
+// convolution), since rows then stay where first put them.
+func keepBlocks(first, second *ir.Layer) int {
+	if elementwise(second) {
+		return first.RowBlock
+	}
+	return 0
 }

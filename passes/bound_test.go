@@ -90,7 +90,11 @@ func TestBoundIsTheLayoutsNotTheLowerings(t *testing.T) {
 				if l.Kind == ir.Activation || strings.Contains(opt.Layers[i].Kind, "in blocks of") {
 					continue
 				}
-				require.Equal(t, countDiagonalsIn(l, opt.Period), bo.Layers[i].Diagonals, "layer %s", l.Name)
+				pitch := 0
+				if i == 0 {
+					pitch = opt.Input.Pitch
+				}
+				require.Equal(t, countDiagonalsIn(l, opt.Period, pitch), bo.Layers[i].Diagonals, "layer %s", l.Name)
 				require.Equal(t, roundMS(bo.Layers[i]), roundMS(bn.Layers[i]), "layer %s", l.Name)
 			}
 			require.LessOrEqual(t, bo.MS, programMS(opt, prof)*(1+1e-9))
@@ -100,8 +104,9 @@ func TestBoundIsTheLayoutsNotTheLowerings(t *testing.T) {
 }
 
 // countDiagonalsIn counts the nonzero diagonals (c − r) mod D of a dense
-// or linear layer's matrix.
-func countDiagonalsIn(l *ir.Layer, D int) int {
+// or linear layer's matrix, reading column c of row r from the copy of the
+// input pitch slots apart that r's block reads (pitch 0: one copy).
+func countDiagonalsIn(l *ir.Layer, D, pitch int) int {
 	seen := map[int]bool{}
 	switch l.Kind {
 	case ir.Dense:
@@ -116,7 +121,7 @@ func countDiagonalsIn(l *ir.Layer, D int) int {
 		sum := map[[2]int]float64{}
 		for r, row := range l.Map.Row {
 			for _, e := range row {
-				sum[[2]int{r, e.Col}] += e.Val
+				sum[[2]int{r, copyColumn(e.Col, r, pitch)}] += e.Val
 			}
 		}
 		for rc, v := range sum {

@@ -63,13 +63,16 @@ func keyBudget(s *State) error {
 	if relin {
 		fixed = 1
 	}
-	size := func(rotations int) int64 { return keyFileBytes(p.Params, rotations, relin) }
+	// A smaller set is sized as if every key were made for the top level
+	// (which steps it keeps, and at which levels their chains run, is
+	// what the search decides), so the budget holds whatever it keeps.
+	size := func(rotations int) int64 { return keyFileBytes(p.Params, topLevels(p.Params, rotations), relin) }
 	exact := snapshot(p)
 	rep := &BudgetReport{LimitBytes: limit, Exact: exact, ExactSteps: steps, Steps: steps}
 	s.Report.Budget = rep
 	mb := func(b int64) float64 { return float64(b) / 1e6 }
-	if size(len(steps)) <= limit {
-		s.note("key budget %.1f MB: the exact set of %d keys (%.1f MB) fits", mb(limit), len(steps)+fixed, mb(size(len(steps))))
+	if b := keyFileBytes(p.Params, stepLevels(p, steps), relin); b <= limit {
+		s.note("key budget %.1f MB: the exact set of %d keys (%.1f MB) fits", mb(limit), len(steps)+fixed, mb(b))
 		return nil
 	}
 	least := min(len(steps), 1)
@@ -145,27 +148,71 @@ func rotationCount(p *ir.Program) int {
 }
 
 // keyFileBytes is the size of the evaluation-keys file that keygen writes
-// for the given number of rotation keys and, if relin, a relinearization
-// key: the runtime's 88-byte object header, its framing (a relinearization
-// flag, a count and a 4-byte step per rotation key), and each key in
-// lattigo's encoding — a key-switching key is 16 bytes of decomposition
-// bases and a matrix (8-byte length) of one row (8-byte length) per digit
-// holding one vector (8-byte length) of two polynomials over Q and P, each
-// a matrix (8-byte length) of rows (8-byte length) of N 8-byte
-// coefficients; a Galois key adds 16 bytes. It is what the budget bounds,
+// for rotation keys made for the given levels and, if relin, a
+// relinearization key (at the top level): the runtime's 88-byte object
+// header, its framing (a relinearization flag, a count, a 4-byte step and
+// a 1-byte level per rotation key), and each key in lattigo's encoding
+// (gadgetBytes); a Galois key adds 16 bytes. It is what the budget bounds,
 // a few kilobytes per key above keyBytes; the key-budget end-to-end test
 // checks it against the file keygen writes.
-func keyFileBytes(pr ir.Params, rotations int, relin bool) int64 {
-	n := int64(1) << pr.LogN
-	q, pp := int64(len(pr.LogQ)), int64(len(pr.LogP))
-	digits := (q + pp - 1) / pp
-	poly := func(rows int64) int64 { return 8 + rows*(8+8*n) }
-	gadget := 16 + digits*(8+8+2*(poly(q)+poly(pp)))
-	size := int64(88+5+4*rotations) + int64(rotations)*(16+gadget)
+func keyFileBytes(pr ir.Params, levels []int, relin bool) int64 {
+	size := int64(88 + 5 + 5*len(levels))
+	for _, l := range levels {
+		size += 16 + gadgetBytes(pr, l)
+	}
 	if relin {
-		size += gadget
+		size += gadgetBytes(pr, pr.MaxLevel())
 	}
 	return size
+}
+
+// gadgetBytes is the encoded size of a key-switching key made for level ℓ:
+// 16 bytes of decomposition bases and a matrix (8-byte length) of one row
+// (8-byte length) per digit, a digit being as many of the ℓ+1 primes of Q
+// as P has primes, holding one vector (8-byte length) of two polynomials
+// over Q up to ℓ and P, each a matrix (8-byte length) of rows (8-byte
+// length) of N 8-byte coefficients.
+func gadgetBytes(pr ir.Params, level int) int64 {
+	n := int64(1) << pr.LogN
+	q, pp := int64(level+1), int64(len(pr.LogP))
+	digits := (q + pp - 1) / pp
+	poly := func(rows int64) int64 { return 8 + rows*(8+8*n) }
+	return 16 + digits*(8+8+2*(poly(q)+poly(pp)))
+}
+
+// topLevels is n times the top level: the levels of n rotation keys when
+// it is not yet known which steps they serve.
+func topLevels(pr ir.Params, n int) []int {
+	out := make([]int, n)
+	for i := range out {
+		out[i] = pr.MaxLevel()
+	}
+	return out
+}
+
+// stepLevels is, for each step of steps, the highest level p rotates by
+// it at (the level its key is made for); the top level for a step p does
+// not use.
+func stepLevels(p *ir.Program, steps []int) []int {
+	level := map[int]int{}
+	for _, op := range p.Ops {
+		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
+			at := p.Values[op.Args[0]].Level
+			for _, k := range op.Steps {
+				if old, ok := level[k]; !ok || at > old {
+					level[k] = at
+				}
+			}
+		}
+	}
+	out := make([]int, len(steps))
+	for i, k := range steps {
+		out[i] = p.Params.MaxLevel()
+		if l, ok := level[k]; ok {
+			out[i] = l
+		}
+	}
+	return out
 }
 
 func leastKeys(fixed, steps int) string {

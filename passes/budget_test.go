@@ -32,7 +32,7 @@ func keyCount(p *ir.Program) int {
 
 // fileBytes is the size of a compiled program's evaluation-keys file.
 func fileBytes(p *ir.Program) int64 {
-	return keyFileBytes(p.Params, len(p.Rotations), p.Relinearize)
+	return keyFileBytes(p.Params, p.RotationLevels, p.Relinearize)
 }
 
 // Under a tight budget (room for about a third of the exact rotation keys,
@@ -52,7 +52,7 @@ func TestBudgetTestdata(t *testing.T) {
 				t.Skipf("%d rotation keys: nothing to compose", len(exact.Rotations))
 			}
 			room := max(1, len(exact.Rotations)/3)
-			limit := keyFileBytes(exact.Params, room, exact.Relinearize) + per/2
+			limit := keyFileBytes(exact.Params, topLevels(exact.Params, room), exact.Relinearize) + per/2
 			prog, bst, err := Compile(g, Options{MaxKeyBytes: limit})
 			require.NoError(t, err)
 			again, _, err := Compile(g, Options{MaxKeyBytes: limit})
@@ -99,7 +99,7 @@ func TestBudgetFitsOrRefuses(t *testing.T) {
 	require.Equal(t, len(exact.Ops), len(prog.Ops))
 	require.Zero(t, st.Report.Budget.Added)
 
-	least := keyFileBytes(exact.Params, 1, exact.Relinearize)
+	least := keyFileBytes(exact.Params, topLevels(exact.Params, 1), exact.Relinearize)
 	_, _, err = Compile(g, Options{MaxKeyBytes: least - 1})
 	require.Error(t, err)
 	require.Contains(t, err.Error(), fmt.Sprintf("smallest key set this program can use, %.1f MB", float64(least)/1e6))

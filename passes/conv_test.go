@@ -200,3 +200,38 @@ func TestDenseInBlocks(t *testing.T) {
 		require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
 	}
 }
+
+// A strided convolution that reads the input is evaluated on one copy of
+// the input per output channel: every channel then shares each kernel
+// tap's diagonal, so the layer costs C·K² plaintext products instead of
+// O·C·K², and the simulation still matches the reference.
+func TestConvInputCopies(t *testing.T) {
+	cases := []struct {
+		name           string
+		in             []int
+		first          *ir.Layer
+		copies, pitch  int
+		plainMulsLayer int
+	}{
+		{"digit conv", []int{1, 28, 28}, conv(5, 5, 2, [4]int{1, 1, 1, 1}), 5, 784, 25},
+		{"two channels in", []int{2, 9, 9}, conv(3, 3, 2, [4]int{}), 3, 162, 18},
+	}
+	for i, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			g := convNet(uint64(40+i), c.in, c.first, act(ir.Square), &ir.Layer{Kind: ir.Flatten}, dense(4))
+			prog, st, err := Compile(g, Options{})
+			require.NoError(t, err)
+			require.Equal(t, c.copies, prog.Input.Copies)
+			require.Equal(t, c.pitch, prog.Input.Pitch)
+			require.Equal(t, c.plainMulsLayer, prog.Layers[0].PlainMuls)
+			for k := range 3 {
+				x := randomInput(uint64(k), g.Input.Size)
+				want, err := st.Model.Reference(x)
+				require.NoError(t, err)
+				got, err := prog.Simulate(x)
+				require.NoError(t, err)
+				require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
+			}
+		})
+	}
+}

@@ -19,11 +19,11 @@ func linearize(s *State) error {
 	g := s.Graph
 	var out []*ir.Layer
 	spreads := map[*ir.Layer]placement{}
-	for _, l := range g.Layers {
+	for i, l := range g.Layers {
 		switch l.Kind {
 		case ir.Conv2D:
 			m := convMap(l)
-			if pl, ok := convPlacement(l); ok {
+			if pl, ok := convPlacement(l, i == 0); ok {
 				spreads[m] = pl
 			}
 			out = append(out, m)

@@ -2,7 +2,7 @@ package passes
 
 import (
 	"fmt"
-	"math"
+	"slices"
 
 	"github.com/lanthorn/lanthorn/ir"
 )
@@ -28,12 +28,22 @@ func lower(s *State) error {
 	p.Input = ir.PackedLayout(g.Input.Size, p.Period, p.Period)
 	p.Output = ir.PackedLayout(g.OutSize(), p.Period, p.Period)
 
+	pitch := 0
+	if len(g.Layers) > 0 && p.Input.Count() == 1 && chunks(g.Layers[0].Out, p.Period) == 1 {
+		if copies, pt := inputCopies(g.Layers[0], p.Period); copies > 1 {
+			// One ciphertext: chunks as long as the input, copies pitch apart.
+			p.Input.Chunk, p.Input.Copies, p.Input.Pitch, pitch = g.Input.Size, copies, pt, pt
+		}
+	}
 	xs := inputValues(p, identifier(g.Input.Name))
 	for i, l := range g.Layers {
 		info := &ir.LayerInfo{Name: l.Name, Pos: l.Pos}
 		p.Layers = append(p.Layers, info)
 		b := &builder{p: p, layer: i, prefix: identifier(l.Name), method: s.Opts.Method}
 		b.naive = s.Opts.Naive
+		if i == 0 {
+			b.pitch = pitch
+		}
 		if len(xs) > 1 || chunks(l.Out, p.Period) > 1 {
 			var err error
 			if xs, err = b.chunked(l, xs, info); err != nil {
@@ -72,6 +82,7 @@ type builder struct {
 	prefix string
 	method map[string]Method // the selection's matrix methods (method.go)
 	naive  bool              // Options.Naive: naiveMatVec (naive.go)
+	pitch  int               // the input is copied every pitch slots (see inputCopies); 0: one copy
 }
 
 func (b *builder) op(kind ir.OpKind, name string, args ...ir.ValueID) ir.ValueID {
@@ -124,7 +135,7 @@ func (b *builder) linear(l *ir.Layer, x ir.ValueID, info *ir.LayerInfo) (ir.Valu
 	diags := map[int][]float64{}
 	for t, row := range l.Map.Row {
 		for _, e := range row {
-			k := ((e.Col-t)%D + D) % D
+			k := ((copyColumn(e.Col, t, b.pitch)-t)%D + D) % D
 			d, ok := diags[k]
 			if !ok {
 				d = make([]float64, D)
@@ -148,76 +159,90 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 		return b.naiveMatVec(l, diags, x, info)
 	}
 	D := b.p.Period
-	n1, cost := bestBabySteps(diags, D)
+	sp := bestSplit(diags, D)
 	// A layer with few outputs may instead fold its matrix into blocks of
 	// B = nextPow2(Out) rows: B diagonals, then log2(D/B) rotate-and-add
 	// steps sum the D/B partial results (see blockDiags).
 	block := D
 	if B := nextPow2(l.Out); B < D {
 		h := blockDiags(diags, l.Out, B, D)
-		hn1, hcost := bestBabySteps(h, D)
-		if hcost += log2(D / B); useBlocks(b.method, l.Name, cost, hcost) {
-			diags, n1, block = h, hn1, B
+		hs := bestSplit(h, D)
+		if useBlocks(b.method, l.Name, sp.rotations, hs.rotations+log2(D/B)) {
+			diags, sp, block = h, hs, B
 		}
 	}
+	n1 := sp.n1
 	info.BabySteps, info.GiantSteps = n1, (D+n1-1)/n1
 
-	var babies []int
-	for i := 1; i < n1; i++ {
-		for k := range diags {
-			if k%n1 == i {
-				babies = append(babies, i)
-				break
-			}
-		}
+	keys := make([]int, 0, len(diags))
+	for k := range diags {
+		keys = append(keys, k)
 	}
+	slices.Sort(keys)
+	// Baby steps ascending; giant blocks in ascending giant step, each
+	// with its diagonals in ascending baby step.
+	type term struct{ k, i int }
+	blocks := map[int][]term{}
+	var babySet, giants []int
+	for _, k := range keys {
+		i, g := sp.parts(k, D)
+		if i != 0 && !slices.Contains(babySet, i) {
+			babySet = append(babySet, i)
+		}
+		if _, ok := blocks[g]; !ok {
+			giants = append(giants, g)
+		}
+		blocks[g] = append(blocks[g], term{k, i})
+	}
+	slices.Sort(babySet)
+	slices.Sort(giants)
+	mod := func(s int) int { return (s%D + D) % D }
 	rot := map[int]ir.ValueID{0: x}
-	if len(babies) > 0 {
-		op := &ir.Op{Kind: ir.OpRotHoisted, Args: []ir.ValueID{x}, Steps: babies, Const: -1, Layer: b.layer}
-		for _, i := range babies {
-			v := b.p.NewValue(fmt.Sprintf("%sRot%d", b.prefix, i), ir.Cipher, b.layer)
+	if len(babySet) > 0 {
+		var steps []int
+		for _, i := range babySet {
+			steps = append(steps, mod(i))
+		}
+		op := &ir.Op{Kind: ir.OpRotHoisted, Args: []ir.ValueID{x}, Steps: steps, Const: -1, Layer: b.layer}
+		for _, i := range babySet {
+			v := b.p.NewValue(fmt.Sprintf("%sRot%d", b.prefix, mod(i)), ir.Cipher, b.layer)
 			op.Results = append(op.Results, v)
 			rot[i] = v
 		}
 		b.p.Ops = append(b.p.Ops, op)
-		info.Rotations += len(babies)
-		if len(babies) > 1 {
-			info.Hoisted += len(babies)
+		info.Rotations += len(babySet)
+		if len(babySet) > 1 {
+			info.Hoisted += len(babySet)
 		}
 	}
 	var acc ir.ValueID
 	haveAcc := false
-	for j := 0; j*n1 < D; j++ {
+	for _, g := range giants {
+		ts := blocks[g]
+		slices.SortFunc(ts, func(a, b term) int { return a.i - b.i })
+		step := mod(g * n1)
 		var sum ir.ValueID
-		haveSum := false
-		for i := 0; i < n1 && j*n1+i < D; i++ {
-			k := j*n1 + i
-			d, ok := diags[k]
-			if !ok {
-				continue
-			}
-			shifted := make([]float64, D) // rot_{-n1·j}(diag_k)
+		for n, tm := range ts {
+			d := diags[tm.k]
+			shifted := make([]float64, D) // rot_{-g·n1}(diag_k)
 			for t := range shifted {
-				shifted[t] = d[((t-j*n1)%D+D)%D]
+				shifted[t] = d[mod(t-g*n1)]
 			}
-			prod := b.withConst(ir.OpMulPlain, fmt.Sprintf("Prod%d", k), rot[i],
-				&ir.Const{Name: fmt.Sprintf("%s.diag%d", l.Name, k), Kind: ir.Vector, Data: shifted})
+			prod := b.withConst(ir.OpMulPlain, fmt.Sprintf("Prod%d", tm.k), rot[tm.i],
+				&ir.Const{Name: fmt.Sprintf("%s.diag%d", l.Name, tm.k), Kind: ir.Vector, Data: shifted})
 			info.PlainMuls++
-			if haveSum {
-				sum = b.op(ir.OpAdd, fmt.Sprintf("Block%dSum", j), sum, prod)
+			if n == 0 {
+				sum = prod
 			} else {
-				sum, haveSum = prod, true
+				sum = b.op(ir.OpAdd, fmt.Sprintf("Block%dSum", step), sum, prod)
 			}
 		}
-		if !haveSum {
-			continue
-		}
-		if j > 0 {
-			sum = b.rotate(sum, j*n1, fmt.Sprintf("Block%d", j))
+		if step != 0 {
+			sum = b.rotate(sum, step, fmt.Sprintf("Block%d", step))
 			info.Rotations++
 		}
 		if haveAcc {
-			acc = b.op(ir.OpAdd, fmt.Sprintf("Acc%d", j), acc, sum)
+			acc = b.op(ir.OpAdd, fmt.Sprintf("Acc%d", step), acc, sum)
 		} else {
 			acc, haveAcc = sum, true
 		}
@@ -254,35 +279,10 @@ func (b *builder) rotate(v ir.ValueID, k int, name string) ir.ValueID {
 	return r
 }
 
-// bestBabySteps picks the baby-step count n1 that minimises the rotations
-// of the split: distinct nonzero i = k mod n1 plus distinct nonzero j = k/n1.
-// Ties go to the smallest n1.
+// bestBabySteps is the baby-step count and rotation count of bestSplit.
 func bestBabySteps(diags map[int][]float64, D int) (n1, rotations int) {
-	keys := make([]int, 0, len(diags))
-	for k := range diags {
-		keys = append(keys, k)
-	}
-	// seenI[i] == n1 marks baby step i as counted for this n1; likewise
-	// seenJ for giant steps. No clearing between candidates.
-	seenI, seenJ := make([]int, D+1), make([]int, D+1)
-	best, bestCost := 1, math.MaxInt
-	for n1 := 1; n1 <= D; n1++ {
-		cost := 0
-		for _, k := range keys {
-			if i := k % n1; i != 0 && seenI[i] != n1 {
-				seenI[i] = n1
-				cost++
-			}
-			if j := k / n1; j != 0 && seenJ[j] != n1 {
-				seenJ[j] = n1
-				cost++
-			}
-		}
-		if cost < bestCost {
-			best, bestCost = n1, cost
-		}
-	}
-	return best, bestCost
+	sp := bestSplit(diags, D)
+	return sp.n1, sp.rotations
 }
 
 // blockDiags folds the diagonals of an Out×In matrix (diag_K[t] = W[t][(t+K)

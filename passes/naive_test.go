@@ -168,9 +168,13 @@ func checkNaive(t *testing.T, p *ir.Program, st *State) {
 				}
 			}
 		case ir.Linear:
+			pitch := 0
+			if li == 0 {
+				pitch = p.Input.Pitch // the copy of the input the row's block reads
+			}
 			for r, row := range l.Map.Row {
 				for _, e := range row {
-					sum[[2]int{r, e.Col}] += e.Val
+					sum[[2]int{r, copyColumn(e.Col, r, pitch)}] += e.Val
 				}
 			}
 		}

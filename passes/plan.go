@@ -107,7 +107,7 @@ func MakePlan(st *State, prof *Profile) *Plan {
 	if p.Relinearize {
 		keys++
 	}
-	plan.Keys = PlanKeys{Rotations: p.Rotations, Relinearize: p.Relinearize, Count: keys, Bytes: int64(keys) * keyBytes(pr)}
+	plan.Keys = PlanKeys{Rotations: p.Rotations, Relinearize: p.Relinearize, Count: keys, Bytes: keyFileBytes(pr, stepLevels(p, p.Rotations), p.Relinearize)}
 	plan.UploadCts, plan.DownloadCts = p.Input.Count(), p.Output.Count()
 	plan.UploadB = int64(plan.UploadCts) * ciphertextBytes(pr, pr.MaxLevel())
 	plan.DownloadB = int64(plan.DownloadCts) * ciphertextBytes(pr, plan.Total.LevelOut)

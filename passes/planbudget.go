@@ -37,9 +37,9 @@ func planBudget(st *State, prof *Profile, plan *Plan) *PlanBudget {
 	}
 	pr, relin := st.Prog.Params, plan.Keys.Relinearize
 	exact := BudgetPoint{Rotations: rep.ExactSteps, Count: len(rep.ExactSteps) + fixed,
-		Bytes: keyFileBytes(pr, len(rep.ExactSteps), relin), EstimateMS: EstimateProgram(rep.Exact, prof).TotalMS}
+		Bytes: keyFileBytes(pr, stepLevels(rep.Exact, rep.ExactSteps), relin), EstimateMS: EstimateProgram(rep.Exact, prof).TotalMS}
 	budgeted := BudgetPoint{Rotations: plan.Keys.Rotations, Count: plan.Keys.Count,
-		Bytes: keyFileBytes(pr, len(plan.Keys.Rotations), relin), EstimateMS: plan.EstimateMS}
+		Bytes: plan.Keys.Bytes, EstimateMS: plan.EstimateMS}
 	return &PlanBudget{LimitBytes: rep.LimitBytes, Exact: exact, Budgeted: budgeted, Composed: rep.Composed, Added: rep.Added}
 }
 

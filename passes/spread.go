@@ -10,8 +10,9 @@ import (
 // slots; the other slots hold zeros (or what elementwise layers make of
 // them) and no later layer reads them.
 type placement struct {
-	At   []int
-	Size int
+	At    []int
+	Size  int
+	Block int // slots per output channel, for a convolution's spread layout
 }
 
 // convPlacement is the spread layout of a convolution's output: value
@@ -21,14 +22,21 @@ type placement struct {
 // (i, j): at most O·C·KH·KW diagonals, where the packed layout of a strided
 // convolution (row pitch OW ≠ W) spreads them over almost all of D. It is
 // not possible when a row of outputs is wider than SH input rows.
-func convPlacement(l *ir.Layer) (placement, bool) {
+//
+// A convolution that reads the model's input takes blocks at least as long
+// as the input, B ≥ C·H·W, so that the client can encrypt one copy of the
+// input per output channel, B slots apart (see inputCopies).
+func convPlacement(l *ir.Layer, readsInput bool) (placement, bool) {
 	in, o, w := l.Ins(), l.Outs(), l.Window
 	W := in[2]
 	if (o[2]-1)*w.SW >= w.SH*W {
 		return placement{}, false
 	}
 	B := (o[1]-1)*w.SH*W + (o[2]-1)*w.SW + 1
-	pl := placement{At: make([]int, 0, l.Out), Size: o[0] * B}
+	if readsInput {
+		B = max(B, l.In)
+	}
+	pl := placement{At: make([]int, 0, l.Out), Size: o[0] * B, Block: B}
 	for oc := range o[0] {
 		for i := range o[1] {
 			for j := range o[2] {
@@ -64,6 +72,9 @@ func spread(s *State, layers []*ir.Layer, cands map[*ir.Layer]placement) []*ir.L
 			continue
 		}
 		l.Map, l.Out = moved, pl.Size
+		if i == 0 && pl.Block >= l.In {
+			l.RowBlock = pl.Block
+		}
 		if l.Bias != nil {
 			b := make([]float64, pl.Size)
 			for r, v := range l.Bias {

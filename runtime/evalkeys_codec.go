@@ -13,21 +13,24 @@ import (
 //	u8   1 if a relinearization key follows, else 0
 //	u32  number of rotation keys n
 //	n × u32 rotation steps, ascending, each in 1..Slots-1
-//	     the relinearization key (lattigo encoding), if any
+//	n × u8  the level each rotation key is made for, in the same order
+//	     the relinearization key (lattigo encoding, top level), if any
 //	n ×  the Galois key of each step, in the same order (lattigo encoding)
 //
-// Every lattigo object has a size fixed by the parameters, so the whole
-// payload size follows from the first bytes, and each key is checked
-// against the layout of a key of that shape before lattigo decodes it.
+// Every lattigo object has a size fixed by the parameters and its level,
+// so the whole payload size follows from the first bytes, and each key is
+// checked against the layout of a key of that shape before lattigo
+// decodes it.
 
-// evkFramingSize is the size of the step list for n rotation keys.
+// evkFramingSize is the size of the step and level lists for n rotation
+// keys.
 func evkFramingSize(n int) int {
-	return 5 + 4*n
+	return 5 + 5*n
 }
 
-// evkLayouts holds the layouts of the two key types for p.
+// evkLayouts holds the layout of the relinearization key for p.
 type evkLayouts struct {
-	relin, galois layout
+	relin layout // Galois keys differ by level: see galoisLayout
 }
 
 func newEvkLayouts(p *Params) (evkLayouts, error) {
@@ -38,14 +41,15 @@ func newEvkLayouts(p *Params) (evkLayouts, error) {
 	if err != nil {
 		return evkLayouts{}, err
 	}
-	galois, err := p.layout("galois key", func() (layout, error) {
-		gk := rlwe.NewGaloisKey(p.hp)
+	return evkLayouts{relin: relin}, nil
+}
+
+// galoisLayout is the layout of a Galois key made for level lvl.
+func (p *Params) galoisLayout(lvl int) (layout, error) {
+	return p.layout(fmt.Sprintf("galois key at level %d", lvl), func() (layout, error) {
+		gk := rlwe.NewGaloisKey(p.hp, rlwe.EvaluationKeyParameters{LevelQ: &lvl})
 		return newLayout(gk, func() { fillGadget(&gk.GadgetCiphertext) })
 	})
-	if err != nil {
-		return evkLayouts{}, err
-	}
-	return evkLayouts{relin: relin, galois: galois}, nil
 }
 
 // maxEvalKeysSize bounds the payload of an evaluation-keys file read for
@@ -93,6 +97,9 @@ func (k *EvaluationKeys) writePayload(w io.Writer) error {
 	for _, s := range k.steps {
 		b = binary.LittleEndian.AppendUint32(b, uint32(s))
 	}
+	for _, s := range k.steps {
+		b = append(b, uint8(k.galois[s].LevelQ()))
+	}
 	if _, err := w.Write(b); err != nil {
 		return err
 	}
@@ -138,7 +145,19 @@ func decodeEvalKeys(p *Params, payload []byte) (*EvaluationKeys, error) {
 	if err != nil {
 		return nil, err
 	}
-	want := int64(frame) + int64(n)*int64(l.galois.size)
+	levels := make([]int, n)
+	galois := make([]layout, n)
+	want := int64(frame)
+	for i := range levels {
+		levels[i] = int(payload[5+4*int(n)+i])
+		if levels[i] > p.MaxLevel() {
+			return nil, fmt.Errorf("malformed evaluation keys: the key for step %d is made for level %d, the chain has %d", k.steps[i], levels[i], p.MaxLevel())
+		}
+		if galois[i], err = p.galoisLayout(levels[i]); err != nil {
+			return nil, err
+		}
+		want += int64(galois[i].size)
+	}
 	if hasRelin == 1 {
 		want += int64(l.relin.size)
 	}
@@ -167,18 +186,18 @@ func decodeEvalKeys(p *Params, payload []byte) (*EvaluationKeys, error) {
 			return nil, fmt.Errorf("relinearization key: %w", err)
 		}
 	}
-	for _, s := range k.steps {
-		b := rest[:l.galois.size]
+	for i, s := range k.steps {
+		b := rest[:galois[i].size]
 		rest = rest[len(b):]
 		// The first 8 bytes hold the Galois element, which the layout (made
 		// with element 0) cannot know; it must be the one of the step.
 		if got, want := binary.LittleEndian.Uint64(b[:8]), p.hp.GaloisElement(s); got != want {
 			return nil, fmt.Errorf("rotation key for step %d: Galois element %d, want %d", s, got, want)
 		}
-		if err := l.galois.match(b, [2]int{0, 8}); err != nil {
+		if err := galois[i].match(b, [2]int{0, 8}); err != nil {
 			return nil, fmt.Errorf("rotation key for step %d: %w", s, err)
 		}
-		gk := rlwe.NewGaloisKey(p.hp)
+		gk := rlwe.NewGaloisKey(p.hp, rlwe.EvaluationKeyParameters{LevelQ: &levels[i]})
 		if err := readInto(gk, b); err != nil {
 			return nil, fmt.Errorf("rotation key for step %d: %w", s, err)
 		}

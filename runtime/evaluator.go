@@ -231,13 +231,19 @@ func degreeOne(ct *Ciphertext, op string) error {
 	return nil
 }
 
-// rotationKey checks that a key for the normalised step k is loaded.
-func (e *Evaluator) rotationKey(k int) error {
+// rotationKey checks that a key for the normalised step k is loaded and
+// made for the ciphertext's level or above.
+func (e *Evaluator) rotationKey(k, level int) error {
 	if e.keys == nil {
 		return fmt.Errorf("no evaluation keys loaded, and rotation %d needs one", k)
 	}
-	if _, ok := e.keys.galois[k]; !ok {
+	gk, ok := e.keys.galois[k]
+	if !ok {
 		return fmt.Errorf("no rotation key for step %d (the keys hold %v)", k, e.keys.steps)
+	}
+	// lattigo would use a lower key's digits silently and return garbage.
+	if gk.LevelQ() < level {
+		return fmt.Errorf("the rotation key for step %d is made for level %d, the ciphertext is at level %d", k, gk.LevelQ(), level)
 	}
 	return nil
 }
@@ -256,7 +262,7 @@ func (e *Evaluator) Rotate(ct *Ciphertext, step int) *Ciphertext {
 		if k == 0 {
 			return ct.ct.CopyNew(), nil
 		}
-		if err := e.rotationKey(k); err != nil {
+		if err := e.rotationKey(k, ct.Level()); err != nil {
 			return nil, err
 		}
 		return l.ev.RotateNew(ct.ct, k)
@@ -322,7 +328,7 @@ func (e *Evaluator) hoistedSteps(ct *Ciphertext, steps []int) ([]int, error) {
 	}
 	ks := normalizeSteps(e.p.Slots(), steps)
 	for _, k := range ks {
-		if err := e.rotationKey(k); err != nil {
+		if err := e.rotationKey(k, ct.Level()); err != nil {
 			return nil, err
 		}
 	}

@@ -19,6 +19,11 @@ type SecretKey struct {
 // EvaluationKeys are the public keys the evaluating side needs: one Galois
 // key per rotation step and, if the program multiplies two ciphertexts, a
 // relinearization key.
+//
+// A rotation key may be made for a level below the top: it then holds only
+// the digits and primes of that level and is about (ℓ+1)(ℓ+2)/((L+1)(L+2))
+// the size of a top-level key, and it can rotate ciphertexts at level ℓ or
+// below only (the evaluator refuses it for a higher one).
 type EvaluationKeys struct {
 	fp     [sha256.Size]byte
 	relin  *rlwe.RelinearizationKey
@@ -28,8 +33,36 @@ type EvaluationKeys struct {
 
 // KeyRequest lists the evaluation keys a program needs.
 type KeyRequest struct {
-	Rotations   []int // left-rotation steps; any integer, taken modulo Slots
-	Relinearize bool  // whether a relinearization key is needed
+	Rotations []int // left-rotation steps; any integer, taken modulo Slots
+	// Levels, when set, has one entry per rotation: the highest level at
+	// which the program rotates by that step, and so the level its key is
+	// made for. Nil makes every key at the top level.
+	Levels      []int
+	Relinearize bool // whether a relinearization key is needed
+}
+
+// keyLevels maps each normalised step of req to the level its key needs:
+// the highest level req gives it, the top level when req gives none.
+func (p *Params) keyLevels(req KeyRequest) (map[int]int, error) {
+	if req.Levels != nil && len(req.Levels) != len(req.Rotations) {
+		return nil, fmt.Errorf("key request: %d levels for %d rotations", len(req.Levels), len(req.Rotations))
+	}
+	out := map[int]int{}
+	for i, k := range req.Rotations {
+		lvl := p.MaxLevel()
+		if req.Levels != nil {
+			lvl = req.Levels[i]
+		}
+		if lvl < 0 || lvl > p.MaxLevel() {
+			return nil, fmt.Errorf("key request: rotation %d at level %d, want 0..%d", k, lvl, p.MaxLevel())
+		}
+		if s := p.normStep(k); s != 0 {
+			if old, ok := out[s]; !ok || lvl > old {
+				out[s] = lvl
+			}
+		}
+	}
+	return out, nil
 }
 
 // normalizeSteps maps rotation steps to 1..slots-1 (a left rotation by k is
@@ -58,6 +91,10 @@ func GenerateKeys(p *Params, req KeyRequest) (sk *SecretKey, evk *EvaluationKeys
 	if !p.ok() {
 		return nil, nil, errors.New("generate keys: nil parameters (or not made by NewParams)")
 	}
+	levels, err := p.keyLevels(req)
+	if err != nil {
+		return nil, nil, fmt.Errorf("generate keys: %w", err)
+	}
 	kgen := rlwe.NewKeyGenerator(p.hp)
 	s := kgen.GenSecretKeyNew()
 	k := &EvaluationKeys{fp: p.fp, steps: normalizeSteps(p.Slots(), req.Rotations), galois: map[int]*rlwe.GaloisKey{}}
@@ -65,7 +102,8 @@ func GenerateKeys(p *Params, req KeyRequest) (sk *SecretKey, evk *EvaluationKeys
 		k.relin = kgen.GenRelinearizationKeyNew(s)
 	}
 	for _, step := range k.steps {
-		k.galois[step] = kgen.GenGaloisKeyNew(p.hp.GaloisElement(step), s)
+		lvl := levels[step]
+		k.galois[step] = kgen.GenGaloisKeyNew(p.hp.GaloisElement(step), s, rlwe.EvaluationKeyParameters{LevelQ: &lvl})
 	}
 	return &SecretKey{sk: s, fp: p.fp}, k, nil
 }
@@ -116,10 +154,19 @@ func (k *EvaluationKeys) check(p *Params, req KeyRequest) error {
 	if req.Relinearize && k.relin == nil {
 		return errors.New("no relinearization key, and the program multiplies ciphertexts")
 	}
+	levels, err := p.keyLevels(req)
+	if err != nil {
+		return err
+	}
 	var missing []int
 	for _, s := range normalizeSteps(p.Slots(), req.Rotations) {
-		if _, ok := k.galois[s]; !ok {
+		gk, ok := k.galois[s]
+		if !ok {
 			missing = append(missing, s)
+			continue
+		}
+		if gk.LevelQ() < levels[s] {
+			return fmt.Errorf("the rotation key for step %d is made for level %d, and the program rotates at level %d", s, gk.LevelQ(), levels[s])
 		}
 	}
 	if len(missing) > 0 {

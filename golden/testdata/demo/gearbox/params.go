@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{1125899908022273, 1099511922689, 1099512938497, 1099510054913, 1099514314753, 1099514478593, 1099508121601, 1099507695617, 1099515691009},
 	P:        []uint64{144115188075593729},
 	LogScale: 40,
-	ModelID:  "b38343f525eacb890ea487f942b1fb0b",
+	ModelID:  "2b79e199d28ffe517f6464cc35f71a42",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2, 3, 4, 6, 8, 12},
+	Levels:      []int{8, 8, 8, 8, 3, 8, 8},
 	Relinearize: true,
 }
 

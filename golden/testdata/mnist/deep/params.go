@@ -23,7 +23,7 @@ var _ = runtime.APIVersion1
 //
 // How the planner chose them:
 //   - depth 9: the longest chain of rescales and polynomial levels
-//   - scale 2^31: 12 bits of precision asked, noise and its growth through the model (gain 203)
+//   - scale 2^31: 12 bits of precision asked, noise and its growth through the model (gain 189)
 //   - q0 of 41 bits: outputs up to 108 at the default scale (interval arithmetic over the declared input range)
 //   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 368 and 8192 slots hold the period 8192
 var ParamSpec = runtime.ParamSpec{
@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369, 2146041857, 2145976321, 2149810177, 2150072321},
 	P:        []uint64{281474976546817},
 	LogScale: 31,
-	ModelID:  "326845c135cad19f56e63749420897c8",
+	ModelID:  "a450656115a2fb3bedd8f183a596ee70",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
-	Rotations:   []int{1, 2, 3, 4, 5, 6, 7, 8, 12, 16, 24, 28, 29, 30, 32, 40, 48, 56, 57, 58, 64, 128, 206, 207, 208, 234, 235, 236, 256, 262, 263, 264, 512, 1024, 2048, 2904, 3630, 4096, 4356, 5082, 5808, 6534, 7260},
+	Rotations:   []int{1, 2, 3, 4, 5, 6, 7, 8, 12, 16, 24, 28, 32, 40, 48, 56, 64, 128, 256, 512, 1024, 2048, 4096},
+	Levels:      []int{9, 9, 5, 5, 5, 5, 5, 5, 1, 5, 5, 9, 5, 5, 5, 9, 5, 5, 5, 5, 5, 5, 5},
 	Relinearize: true,
 }
 
@@ -53,7 +55,7 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "logits",
 		OutputSize: 10,
-		Input:      runtime.Layout{Size: 784, Chunk: 8192, Copies: 1, Period: 8192},
+		Input:      runtime.Layout{Size: 784, Chunk: 784, Copies: 8, Pitch: 784, Period: 8192},
 		Output:     runtime.Layout{Size: 10, Chunk: 8192, Copies: 1, Period: 8192},
 		Params:     ParamSpec,
 		Keys:       Keys,

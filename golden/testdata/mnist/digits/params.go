@@ -23,7 +23,7 @@ var _ = runtime.APIVersion1
 //
 // How the planner chose them:
 //   - depth 5: the longest chain of rescales and polynomial levels
-//   - scale 2^33: 12 bits of precision asked, noise and its growth through the model (gain 820)
+//   - scale 2^33: 12 bits of precision asked, noise and its growth through the model (gain 807)
 //   - q0 of 54 bits: outputs up to 1.61e+05 at the default scale (interval arithmetic over the declared input range)
 //   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 280 and 8192 slots hold the period 4096
 var ParamSpec = runtime.ParamSpec{
@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{18014398508400641, 8590163969, 8589475841, 8590458881, 8589279233, 8590688257},
 	P:        []uint64{2305843009211662337},
 	LogScale: 33,
-	ModelID:  "2e4189202bf0e8a63c274c8c123fbc9a",
+	ModelID:  "134ce2c01c27d765263b0bcda15f9b7e",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
-	Rotations:   []int{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 16, 20, 25, 26, 27, 28, 29, 30, 32, 40, 50, 58, 60, 64, 70, 80, 87, 90, 100, 110, 120, 128, 256, 512, 1024, 1276, 1305, 1334, 1363, 1392, 1972, 2001, 2030, 2048, 2059, 2088, 2668, 2697, 2726, 2755, 2784, 3364, 3393, 3422, 3451, 3480, 4060, 4089},
+	Rotations:   []int{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 12, 16, 20, 28, 30, 32, 40, 50, 56, 60, 64, 70, 80, 84, 90, 100, 110, 120, 128, 256, 512, 1024, 2048, 4068, 4095},
+	Levels:      []int{5, 5, 5, 3, 3, 3, 3, 3, 3, 3, 1, 1, 3, 5, 3, 1, 3, 3, 5, 3, 1, 3, 3, 5, 3, 3, 3, 3, 3, 3, 3, 3, 3, 5, 5},
 	Relinearize: true,
 }
 
@@ -53,7 +55,7 @@ func Info() runtime.ModelInfo {
 		InputMax:   1.0,
 		OutputName: "logits",
 		OutputSize: 10,
-		Input:      runtime.Layout{Size: 784, Chunk: 4096, Copies: 1, Period: 4096},
+		Input:      runtime.Layout{Size: 784, Chunk: 784, Copies: 5, Pitch: 784, Period: 4096},
 		Output:     runtime.Layout{Size: 10, Chunk: 4096, Copies: 1, Period: 4096},
 		Params:     ParamSpec,
 		Keys:       Keys,

@@ -13,11 +13,6 @@ import (
 // level and exact scale where it meets its ciphertext. They are encoded once per
 // process by Load and reused by every evaluation.
 type Plaintexts struct {
-	ConvDiag0      *runtime.Plaintext // level 3, scale q3
-	ConvDiag1      *runtime.Plaintext // level 3, scale q3
-	ConvDiag5      *runtime.Plaintext // level 3, scale q3
-	ConvDiag6      *runtime.Plaintext // level 3, scale q3
-	ConvDiag7      *runtime.Plaintext // level 3, scale q3
 	ConvDiag85     *runtime.Plaintext // level 3, scale q3
 	ConvDiag86     *runtime.Plaintext // level 3, scale q3
 	ConvDiag87     *runtime.Plaintext // level 3, scale q3
@@ -31,6 +26,11 @@ type Plaintexts struct {
 	ConvDiag122    *runtime.Plaintext // level 3, scale q3
 	ConvDiag123    *runtime.Plaintext // level 3, scale q3
 	ConvDiag127    *runtime.Plaintext // level 3, scale q3
+	ConvDiag0      *runtime.Plaintext // level 3, scale q3
+	ConvDiag1      *runtime.Plaintext // level 3, scale q3
+	ConvDiag5      *runtime.Plaintext // level 3, scale q3
+	ConvDiag6      *runtime.Plaintext // level 3, scale q3
+	ConvDiag7      *runtime.Plaintext // level 3, scale q3
 	ConvBias       *runtime.Plaintext // level 3, scale 2^32·q3
 	Pool1HeadDiag0 *runtime.Plaintext // level 1, scale 2^-32·q1·q2
 	Pool1HeadDiag1 *runtime.Plaintext // level 1, scale 2^-32·q1·q2
@@ -54,11 +54,6 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.ConvDiag0 = enc.Plaintext("conv.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag1 = enc.Plaintext("conv.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag5 = enc.Plaintext("conv.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag6 = enc.Plaintext("conv.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag7 = enc.Plaintext("conv.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag85 = enc.Plaintext("conv.diag85", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag86 = enc.Plaintext("conv.diag86", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag87 = enc.Plaintext("conv.diag87", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
@@ -72,6 +67,11 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.ConvDiag122 = enc.Plaintext("conv.diag122", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag123 = enc.Plaintext("conv.diag123", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag127 = enc.Plaintext("conv.diag127", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag0 = enc.Plaintext("conv.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag1 = enc.Plaintext("conv.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag5 = enc.Plaintext("conv.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag6 = enc.Plaintext("conv.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag7 = enc.Plaintext("conv.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvBias = enc.Plaintext("conv.bias", 3, runtime.Scale{Pow2: 32, Num: []int{3}}, 128)
 	pt.Pool1HeadDiag0 = enc.Plaintext("pool1_head.diag0", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
 	pt.Pool1HeadDiag1 = enc.Plaintext("pool1_head.diag1", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
@@ -99,52 +99,50 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	pt := m.pt
 	ev.Expect(image, 3, runtime.Scale{Pow2: 32})
 
-	// conv_small.yaml:16:5 conv: linear 36→72 from conv (conv2d 3×3 stride 1×1) · norm (batchnorm, folded) · level 3→2 · 10 rotations (3 hoisted) · baby-step giant-step 4×32 · 18 plaintext multiplications · 1 rescale
-	imageHoisted := ev.RotateHoisted(image, 1, 2, 3)
-	convRot1, convRot2, convRot3 := imageHoisted[0], imageHoisted[1], imageHoisted[2]
-	convProd0 := ev.MulPlain(image, pt.ConvDiag0)
-	convProd1 := ev.MulPlain(convRot1, pt.ConvDiag1)
-	convBlock0Sum := ev.Add(convProd0, convProd1)
-	convProd5 := ev.MulPlain(convRot1, pt.ConvDiag5)
-	convProd6 := ev.MulPlain(convRot2, pt.ConvDiag6)
-	convBlock1Sum := ev.Add(convProd5, convProd6)
-	convProd7 := ev.MulPlain(convRot3, pt.ConvDiag7)
-	convBlock1Sum2 := ev.Add(convBlock1Sum, convProd7)
-	convBlock1Rot := ev.Rotate(convBlock1Sum2, 4)
-	convAcc1 := ev.Add(convBlock0Sum, convBlock1Rot)
-	convProd85 := ev.MulPlain(convRot1, pt.ConvDiag85)
-	convProd86 := ev.MulPlain(convRot2, pt.ConvDiag86)
-	convBlock21Sum := ev.Add(convProd85, convProd86)
-	convProd87 := ev.MulPlain(convRot3, pt.ConvDiag87)
-	convBlock21Sum2 := ev.Add(convBlock21Sum, convProd87)
-	convBlock21Rot := ev.Rotate(convBlock21Sum2, 84)
-	convAcc21 := ev.Add(convAcc1, convBlock21Rot)
-	convProd91 := ev.MulPlain(convRot3, pt.ConvDiag91)
-	convBlock22Rot := ev.Rotate(convProd91, 88)
-	convAcc22 := ev.Add(convAcc21, convBlock22Rot)
+	// conv_small.yaml:16:5 conv: linear 36→72 from conv (conv2d 3×3 stride 1×1) · norm (batchnorm, folded) · level 3→2 · 7 rotations (2 hoisted) · baby-step giant-step 3×43 · 18 plaintext multiplications · 1 rescale
+	imageHoisted := ev.RotateHoisted(image, 127, 1)
+	convRot127, convRot1 := imageHoisted[0], imageHoisted[1]
+	convProd85 := ev.MulPlain(convRot127, pt.ConvDiag85)
+	convProd86 := ev.MulPlain(image, pt.ConvDiag86)
+	convBlock86Sum := ev.Add(convProd85, convProd86)
+	convProd87 := ev.MulPlain(convRot1, pt.ConvDiag87)
+	convBlock86Sum2 := ev.Add(convBlock86Sum, convProd87)
+	convBlock86Rot := ev.Rotate(convBlock86Sum2, 86)
+	convProd91 := ev.MulPlain(convRot127, pt.ConvDiag91)
 	convProd92 := ev.MulPlain(image, pt.ConvDiag92)
+	convBlock92Sum := ev.Add(convProd91, convProd92)
 	convProd93 := ev.MulPlain(convRot1, pt.ConvDiag93)
-	convBlock23Sum := ev.Add(convProd92, convProd93)
-	convBlock23Rot := ev.Rotate(convBlock23Sum, 92)
-	convAcc23 := ev.Add(convAcc22, convBlock23Rot)
-	convProd97 := ev.MulPlain(convRot1, pt.ConvDiag97)
-	convProd98 := ev.MulPlain(convRot2, pt.ConvDiag98)
-	convBlock24Sum := ev.Add(convProd97, convProd98)
-	convProd99 := ev.MulPlain(convRot3, pt.ConvDiag99)
-	convBlock24Sum2 := ev.Add(convBlock24Sum, convProd99)
-	convBlock24Rot := ev.Rotate(convBlock24Sum2, 96)
-	convAcc24 := ev.Add(convAcc23, convBlock24Rot)
-	convProd121 := ev.MulPlain(convRot1, pt.ConvDiag121)
-	convProd122 := ev.MulPlain(convRot2, pt.ConvDiag122)
-	convBlock30Sum := ev.Add(convProd121, convProd122)
-	convProd123 := ev.MulPlain(convRot3, pt.ConvDiag123)
-	convBlock30Sum2 := ev.Add(convBlock30Sum, convProd123)
-	convBlock30Rot := ev.Rotate(convBlock30Sum2, 120)
-	convAcc30 := ev.Add(convAcc24, convBlock30Rot)
-	convProd127 := ev.MulPlain(convRot3, pt.ConvDiag127)
-	convBlock31Rot := ev.Rotate(convProd127, 124)
-	convAcc31 := ev.Add(convAcc30, convBlock31Rot)
-	convOut := ev.AddPlain(convAcc31, pt.ConvBias)
+	convBlock92Sum2 := ev.Add(convBlock92Sum, convProd93)
+	convBlock92Rot := ev.Rotate(convBlock92Sum2, 92)
+	convAcc92 := ev.Add(convBlock86Rot, convBlock92Rot)
+	convProd97 := ev.MulPlain(convRot127, pt.ConvDiag97)
+	convProd98 := ev.MulPlain(image, pt.ConvDiag98)
+	convBlock98Sum := ev.Add(convProd97, convProd98)
+	convProd99 := ev.MulPlain(convRot1, pt.ConvDiag99)
+	convBlock98Sum2 := ev.Add(convBlock98Sum, convProd99)
+	convBlock98Rot := ev.Rotate(convBlock98Sum2, 98)
+	convAcc98 := ev.Add(convAcc92, convBlock98Rot)
+	convProd121 := ev.MulPlain(convRot127, pt.ConvDiag121)
+	convProd122 := ev.MulPlain(image, pt.ConvDiag122)
+	convBlock122Sum := ev.Add(convProd121, convProd122)
+	convProd123 := ev.MulPlain(convRot1, pt.ConvDiag123)
+	convBlock122Sum2 := ev.Add(convBlock122Sum, convProd123)
+	convBlock122Rot := ev.Rotate(convBlock122Sum2, 122)
+	convAcc122 := ev.Add(convAcc98, convBlock122Rot)
+	convProd127 := ev.MulPlain(convRot127, pt.ConvDiag127)
+	convProd0 := ev.MulPlain(image, pt.ConvDiag0)
+	convBlock0Sum := ev.Add(convProd127, convProd0)
+	convProd1 := ev.MulPlain(convRot1, pt.ConvDiag1)
+	convBlock0Sum2 := ev.Add(convBlock0Sum, convProd1)
+	convAcc0 := ev.Add(convAcc122, convBlock0Sum2)
+	convProd5 := ev.MulPlain(convRot127, pt.ConvDiag5)
+	convProd6 := ev.MulPlain(image, pt.ConvDiag6)
+	convBlock6Sum := ev.Add(convProd5, convProd6)
+	convProd7 := ev.MulPlain(convRot1, pt.ConvDiag7)
+	convBlock6Sum2 := ev.Add(convBlock6Sum, convProd7)
+	convBlock6Rot := ev.Rotate(convBlock6Sum2, 6)
+	convAcc6 := ev.Add(convAcc0, convBlock6Rot)
+	convOut := ev.AddPlain(convAcc6, pt.ConvBias)
 	convOutRescaled := ev.Rescale(convOut)
 
 	// conv_small.yaml:32:5 act1: square · level 2→1 · 1 ciphertext multiplication · 1 relinearization · 1 rescale
@@ -160,11 +158,11 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	pool1HeadBlock0Sum := ev.Add(pool1HeadProd0, pool1HeadProd1)
 	pool1HeadProd2 := ev.MulPlain(act1SqRelinRescaled, pt.Pool1HeadDiag2)
 	pool1HeadProd3 := ev.MulPlain(pool1HeadRot1, pt.Pool1HeadDiag3)
-	pool1HeadBlock1Sum := ev.Add(pool1HeadProd2, pool1HeadProd3)
-	pool1HeadBlock1Rot := ev.Rotate(pool1HeadBlock1Sum, 2)
-	pool1HeadAcc1 := ev.Add(pool1HeadBlock0Sum, pool1HeadBlock1Rot)
-	pool1HeadFold4Rot := ev.Rotate(pool1HeadAcc1, 4)
-	pool1HeadFolded4 := ev.Add(pool1HeadAcc1, pool1HeadFold4Rot)
+	pool1HeadBlock2Sum := ev.Add(pool1HeadProd2, pool1HeadProd3)
+	pool1HeadBlock2Rot := ev.Rotate(pool1HeadBlock2Sum, 2)
+	pool1HeadAcc2 := ev.Add(pool1HeadBlock0Sum, pool1HeadBlock2Rot)
+	pool1HeadFold4Rot := ev.Rotate(pool1HeadAcc2, 4)
+	pool1HeadFolded4 := ev.Add(pool1HeadAcc2, pool1HeadFold4Rot)
 	pool1HeadFold8Rot := ev.Rotate(pool1HeadFolded4, 8)
 	pool1HeadFolded8 := ev.Add(pool1HeadFolded4, pool1HeadFold8Rot)
 	pool1HeadFold16Rot := ev.Rotate(pool1HeadFolded8, 16)

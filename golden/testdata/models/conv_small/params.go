@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 4295049217, 4295294977, 4295344129},
 	P:        []uint64{281474976694273},
 	LogScale: 32,
-	ModelID:  "c87a7665046b39ac82559a2b0f725b58",
+	ModelID:  "d6ca59d24cac8d19dfa5100556f79bb5",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
-	Rotations:   []int{1, 2, 3, 4, 8, 16, 32, 64, 84, 88, 92, 96, 120, 124},
+	Rotations:   []int{1, 2, 4, 6, 8, 16, 32, 64, 86, 92, 98, 122, 127},
+	Levels:      []int{3, 1, 1, 3, 1, 1, 1, 1, 3, 3, 3, 3, 3},
 	Relinearize: true,
 }
 

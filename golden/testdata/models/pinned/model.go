@@ -77,10 +77,10 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Block0Sum := ev.Add(dense1Prod0, dense1Prod1)
 	dense1Prod2 := ev.MulPlain(input, pt.Dense1Diag2)
 	dense1Prod3 := ev.MulPlain(dense1Rot1, pt.Dense1Diag3)
-	dense1Block1Sum := ev.Add(dense1Prod2, dense1Prod3)
-	dense1Block1Rot := ev.Rotate(dense1Block1Sum, 2)
-	dense1Acc1 := ev.Add(dense1Block0Sum, dense1Block1Rot)
-	dense1Out := ev.AddPlain(dense1Acc1, pt.Dense1Bias)
+	dense1Block2Sum := ev.Add(dense1Prod2, dense1Prod3)
+	dense1Block2Rot := ev.Rotate(dense1Block2Sum, 2)
+	dense1Acc2 := ev.Add(dense1Block0Sum, dense1Block2Rot)
+	dense1Out := ev.AddPlain(dense1Acc2, pt.Dense1Bias)
 	dense1OutRescaled := ev.Rescale(dense1Out)
 
 	// pinned.yaml:24:5 act1: square · level 3→2 · 1 ciphertext multiplication · 1 relinearization · 1 rescale
@@ -96,10 +96,10 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense2Block0Sum := ev.Add(dense2Prod0, dense2Prod1)
 	dense2Prod2 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag2)
 	dense2Prod3 := ev.MulPlain(dense2Rot1, pt.Dense2Diag3)
-	dense2Block1Sum := ev.Add(dense2Prod2, dense2Prod3)
-	dense2Block1Rot := ev.Rotate(dense2Block1Sum, 2)
-	dense2Acc1 := ev.Add(dense2Block0Sum, dense2Block1Rot)
-	dense2Acc1Rescaled := ev.Rescale(dense2Acc1)
+	dense2Block2Sum := ev.Add(dense2Prod2, dense2Prod3)
+	dense2Block2Rot := ev.Rotate(dense2Block2Sum, 2)
+	dense2Acc2 := ev.Add(dense2Block0Sum, dense2Block2Rot)
+	dense2Acc2Rescaled := ev.Rescale(dense2Acc2)
 
-	return []*runtime.Ciphertext{dense2Acc1Rescaled}, ev.Err()
+	return []*runtime.Ciphertext{dense2Acc2Rescaled}, ev.Err()
 }

@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{1125899906826241, 1073692673, 1073643521, 1073872897, 1073971201},
 	P:        []uint64{35184372121601},
 	LogScale: 30,
-	ModelID:  "c5778e9437480fb2743116977124d740",
+	ModelID:  "068295b0da9471412a72dd45db8568ec",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2},
+	Levels:      []int{4, 4},
 	Relinearize: true,
 }
 

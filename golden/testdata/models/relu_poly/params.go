@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 34359771137, 34359410689, 34359214081, 34358788097, 34360754177, 34357805057, 34357444609, 34357411841, 34362163201},
 	P:        []uint64{281474976546817},
 	LogScale: 35,
-	ModelID:  "36d33166165c4bc5271b067dc7dc5aa7",
+	ModelID:  "0fa55a3b4b5725aa2a3412213963e49b",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2, 4, 6},
+	Levels:      []int{9, 9, 9, 9},
 	Relinearize: true,
 }
 

@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{8590163969, 1073643521, 1073872897, 1073971201, 1073479681, 1074266113, 1073184769},
 	P:        []uint64{1099511922689},
 	LogScale: 30,
-	ModelID:  "c62e4554d1998c45c419bc67a7a5ba08",
+	ModelID:  "de9ee53154f62bd5960404c0fa1ac7f8",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2, 4, 6},
+	Levels:      []int{6, 6, 6, 6},
 	Relinearize: true,
 }
 

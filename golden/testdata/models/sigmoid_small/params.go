@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{34359771137, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369},
 	P:        []uint64{4398046150657},
 	LogScale: 31,
-	ModelID:  "90847322778d1a2775d9a47a5cfb4d84",
+	ModelID:  "21577f1260fca8d4c1c89552df477037",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2},
+	Levels:      []int{5, 5},
 	Relinearize: true,
 }
 

@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{34359771137, 1073643521, 1073872897, 1073971201, 1073479681, 1074266113, 1073184769, 1074429953, 1073053697, 1072857089, 1072496641, 1075937281},
 	P:        []uint64{4398046150657},
 	LogScale: 30,
-	ModelID:  "a89f136b6dd2dba157a12b3d9fb33c0c",
+	ModelID:  "ec3a658f883851fae40fe1bf5265ea8d",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2, 4, 6},
+	Levels:      []int{11, 11, 11, 11},
 	Relinearize: true,
 }
 

@@ -31,13 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{549755731969, 33538049, 33292289, 33832961},
 	P:        []uint64{70368744210433},
 	LogScale: 25,
-	ModelID:  "83bd0012171d2e9521db7fb075f55b1f",
+	ModelID:  "a788734a19c6f9770857e28ae38082c8",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
-// step the program uses, and the relinearization key if it multiplies ciphertexts.
+// step the program uses, made for the highest level it rotates at (Levels, in the
+// same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2, 4, 6, 8, 16, 32, 64, 128, 256, 512, 1024, 2048, 4094},
+	Levels:      []int{3, 3, 3, 3, 3, 3, 3, 3, 3, 3, 3, 3, 3, 1},
 	Relinearize: true,
 }
 
