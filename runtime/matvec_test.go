@@ -116,8 +116,21 @@ func newMV(logN, n, n1 int) (*mvSetup, error) {
 	return s, enc.Err()
 }
 
+// mvOps are the Evaluator methods the workload calls (an interface, so
+// that a recorder can stand in; see schedule_model_test.go).
+type mvOps interface {
+	RotateHoisted(ct *Ciphertext, steps ...int) []*Ciphertext
+	Rotate(ct *Ciphertext, step int) *Ciphertext
+	MulPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext
+	Add(a, b *Ciphertext) *Ciphertext
+	Mul(a, b *Ciphertext) *Ciphertext
+	Relinearize(ct *Ciphertext) *Ciphertext
+	Rescale(ct *Ciphertext) *Ciphertext
+	Err() error
+}
+
 // dense multiplies ct by the matrix whose pre-rotated diagonals are pts.
-func (s *mvSetup) dense(ev *Evaluator, ct *Ciphertext, pts []*Plaintext) *Ciphertext {
+func (s *mvSetup) dense(ev mvOps, ct *Ciphertext, pts []*Plaintext) *Ciphertext {
 	steps := make([]int, s.n1-1)
 	for b := range steps {
 		steps[b] = b + 1
@@ -148,7 +161,7 @@ func (s *mvSetup) dense(ev *Evaluator, ct *Ciphertext, pts []*Plaintext) *Cipher
 
 // evaluate runs the workload on x as generated code would: every op, then
 // Err once.
-func (s *mvSetup) evaluate(ev *Evaluator, x *Ciphertext) (*Ciphertext, error) {
+func (s *mvSetup) evaluate(ev mvOps, x *Ciphertext) (*Ciphertext, error) {
 	y := s.dense(ev, x, s.pt1)
 	sq := ev.Rescale(ev.Relinearize(ev.Mul(y, y)))
 	out := s.dense(ev, sq, s.pt2)
