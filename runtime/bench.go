@@ -46,7 +46,7 @@ func (c *cli) bench(args []string) error {
 	threads := threadsFlag(fs)
 	keys := fs.String("keys", "", "key `folder` made by keygen (reads its "+SecretKeyFile+" and "+EvalKeysDir+"/"+EvalKeysFile+"); default: fresh keys in memory")
 	seed := fs.Uint64("seed", 1, "seed of the sample input")
-	asJSON := fs.Bool("json", false, "print one JSON object (fields of BenchResult) instead of text")
+	asJSON := fs.Bool("json", false, "print one JSON object instead of text: model, threads, runs, median_ms, min_ms, max_ms, keys_mb, peak_mb, load_ms, keygen_ms")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
@@ -107,7 +107,9 @@ func (c *cli) bench(args []string) error {
 		}
 	}
 	peak, how := peakMemory()
-	if !resetPeak {
+	if resetPeak {
+		how += ", over the evaluations"
+	} else {
 		how += ", since the process started (key generation included)"
 	}
 	slices.Sort(times)
