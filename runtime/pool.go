@@ -77,19 +77,18 @@ type pool struct {
 	idle    sync.Cond // broadcast when no task is pending and no worker runs
 	more    sync.Cond // signalled when a task becomes ready or none is pending
 	ready   taskHeap
-	pending int // tasks submitted and not finished
-	workers int // worker goroutines alive
-	busy    int // workers running a task
-	waiting int // workers waiting on more
-	free    []*lane
-	lanes   int // lanes made
+	pending int     // tasks submitted and not finished
+	workers int     // worker goroutines alive
+	busy    int     // workers running a task
+	waiting int     // workers waiting on more
+	free    []*lane // lanes of workers that left; at most threads lanes exist
 
 	err            error // the failure with the lowest (seq, sub)
 	errSeq, errSub int
 }
 
 func newPool(p *Params, base *lane, threads int) *pool {
-	q := &pool{p: p, threads: threads, base: base.ev, free: []*lane{base}, lanes: 1}
+	q := &pool{p: p, threads: threads, base: base.ev, free: []*lane{base}}
 	q.idle.L = &q.mu
 	q.more.L = &q.mu
 	return q
@@ -149,8 +148,6 @@ func (q *pool) spawn() {
 		var l *lane
 		if n := len(q.free); n > 0 {
 			l, q.free = q.free[n-1], q.free[:n-1]
-		} else {
-			q.lanes++
 		}
 		q.workers++
 		go q.work(l)
@@ -196,8 +193,6 @@ func (q *pool) work(l *lane) {
 	q.workers--
 	if made == nil {
 		q.free = append(q.free, l)
-	} else {
-		q.lanes--
 	}
 	if q.workers == 0 && q.pending == 0 {
 		q.idle.Broadcast()
