@@ -87,7 +87,9 @@ type Choice struct {
 // sequence of segments (selectdp.go). The best of each period and depth is
 // compiled and priced exactly; the cheapest that compiles wins. Every
 // decision and its runner-up (the best variant that decides otherwise,
-// compiled too) are recorded in the report with their estimated costs.
+// compiled too) are recorded in the report with their estimated costs; a
+// runner-up that beats the choice replaces it, and the runner-ups of the
+// new choice are found in turn.
 func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Program, *State, []Candidate, error) {
 	prog, st, err := Compile(g, opts)
 	if err != nil {
@@ -113,22 +115,19 @@ func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Progra
 	// budget it is skipped: compiled costs then include the rotations the
 	// budget composes, which the search does not model, and the budget
 	// applies to the variants the search chose.
-	var chs []Choice
-	for range 8 {
-		var alts []compiled
-		chs, alts = se.choices(g, opts, best)
-		if opts.MaxKeyBytes > 0 {
-			break
-		}
-		improved := false
+	chs, alts := se.choices(g, opts, best)
+	for round := 0; round < 8 && opts.MaxKeyBytes == 0; round++ {
+		next := best
 		for _, a := range alts {
-			if better(se.exact(a.c), se.exact(best.c), obj) {
-				best, improved = a, true
+			if better(se.exact(a.c), se.exact(next.c), obj) {
+				next = a
 			}
 		}
-		if !improved {
+		if next.sol == best.sol {
 			break
 		}
+		best = next
+		chs, alts = se.choices(g, opts, best)
 	}
 	cands := []Candidate{best.c}
 	for _, d := range done {

@@ -99,7 +99,8 @@ func (se *searcher) params(depth, period int) *cell {
 	return c
 }
 
-// allow filters segments (nil allows all); ring filters ring degrees.
+// constraint narrows the search: forbid excludes segments (nil excludes
+// none), ring keeps only the ring degrees it accepts (nil keeps all).
 type constraint struct {
 	forbid func(*segment) bool
 	ring   func(logN int) bool
