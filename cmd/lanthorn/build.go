@@ -9,6 +9,7 @@ import (
 	"os"
 	"path"
 	"path/filepath"
+	"strconv"
 	"strings"
 
 	"github.com/lanthorn/lanthorn/emit"
@@ -37,8 +38,7 @@ func addProgramFlags(fs *flag.FlagSet) programFlags {
 		out:    fs.String("o", "", "output `directory` (created if missing)"),
 		module: fs.String("module", "", "module `path` of the emitted program (default: the model name)"),
 		naive: fs.Bool("naive", false, "lower without the ciphertext-level optimisations (one rotation per diagonal, a rescale\n"+
-			"after every product, eager relinearization): the benchmark's yardstick, not for deployment;\n"+
-			"the regenerate line in the headers does not name it"),
+			"after every product, eager relinearization): the benchmark's yardstick, not for deployment"),
 		objective: objectiveFlag(fs),
 		maxKeysMB: keyBudgetFlag(fs),
 		chunk:     chunkFlag(fs),
@@ -127,8 +127,31 @@ func generate(specPath, out, module string, popts passes.Options) (emit.Files, *
 		Module:       module,
 		SpecPath:     path.Base(filepath.ToSlash(specPath)),
 		OutDir:       regenOutDir(specPath, out),
+		Flags:        regenFlags(module, popts),
 		InputsSHA256: sum,
 	})
+}
+
+// regenFlags are the flags that change what build writes, as the
+// regenerate line repeats them: the same program comes out of that line.
+func regenFlags(module string, popts passes.Options) []string {
+	var f []string
+	if module != "" {
+		f = append(f, "-module", module)
+	}
+	if popts.Objective != passes.Latency {
+		f = append(f, "-objective", popts.Objective.String())
+	}
+	if popts.MaxKeyBytes > 0 {
+		f = append(f, "-max-keys-mb", strconv.FormatFloat(float64(popts.MaxKeyBytes)/1e6, 'g', -1, 64))
+	}
+	if popts.ChunkSlots > 0 {
+		f = append(f, "-chunk-slots", strconv.Itoa(popts.ChunkSlots))
+	}
+	if popts.Naive {
+		f = append(f, "-naive")
+	}
+	return f
 }
 
 // regenOutDir names the output folder in the regenerate line: relative to
