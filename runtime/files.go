@@ -206,6 +206,9 @@ func ReadEvaluationKeys(path string, p *Params, req KeyRequest) (*EvaluationKeys
 // WriteCiphertexts writes the ciphertexts of one vector to path
 // atomically (mode 0644).
 func WriteCiphertexts(path string, p *Params, cts []*Ciphertext) error {
+	if err := refuseKeyFile(path); err != nil {
+		return err
+	}
 	return writeFile(path, 0o644, func(w io.Writer) error { return MarshalCiphertexts(w, p, cts) })
 }
 

@@ -431,3 +431,25 @@ func TestGadgetSize(t *testing.T) {
 		require.Equal(t, int64(rlwe.NewSecretKey(p.hp).BinarySize()), secretKeySize(p))
 	}
 }
+
+// Writing a ciphertext over a key file is refused and the key is left
+// intact (eval -out pointed at the secret key by mistake); replacing a
+// ciphertext, or a file that is not ours, is allowed.
+func TestCiphertextNeverReplacesKeys(t *testing.T) {
+	e, fs := writeFiles(t)
+	ct, err := ReadCiphertext(fs.ct, e.p)
+	require.NoError(t, err)
+	for _, path := range []string{fs.sk, fs.evk} {
+		before, err := os.ReadFile(path)
+		require.NoError(t, err)
+		err = WriteCiphertext(path, e.p, ct)
+		require.ErrorContains(t, err, "refusing to overwrite it with a ciphertext")
+		after, err := os.ReadFile(path)
+		require.NoError(t, err)
+		require.Equal(t, before, after, "%s untouched", path)
+	}
+	require.NoError(t, WriteCiphertext(fs.ct, e.p, ct))
+	other := filepath.Join(t.TempDir(), "notes.txt")
+	require.NoError(t, os.WriteFile(other, []byte("not a lanthorn object"), 0o644))
+	require.NoError(t, WriteCiphertext(other, e.p, ct))
+}
