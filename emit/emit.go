@@ -34,8 +34,8 @@ type Options struct {
 	OutDir   string // the output folder in the regenerate line, relative to where that command runs; default "<dir>"
 	// Flags are the build flags that shaped the program, as the regenerate
 	// line must repeat them (e.g. "-max-keys-mb", "120").
-	Flags []string
-	Version  string // generator version in headers; default Version (goldens pin it)
+	Flags   []string
+	Version string // generator version in headers; default Version (goldens pin it)
 	// InputsSHA256 is the hash of the files the spec was read from, as
 	// InputsSHA256 computes it; named in every header. It labels the program
 	// like SpecPath does, so it is an option rather than part of Input.
