@@ -12,17 +12,17 @@ import (
 
 // BoundDefinition says in prose what LowerBound counts; the benchmark
 // prints it under its table.
-const BoundDefinition = `lower bound: the work that the compiled program's layout cannot avoid, at the program's own levels,
-priced with primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its
-layout (of the blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions; rotations
-as the cheapest baby-step giant-step split of K over every baby-step count n1, in either orientation (baby
-steps k mod n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct
-sums and are priced as full rotations; or the roles of the two swapped); a blocked layer's sum of D/B shifted copies priced as the cheapest staging of hoisted sets
-(log2(D/B) single rotations at most); one rescale per level at which it multiplies. Per ciphertext product one
-product with its relinearization and one rescale; per polynomial of degree d, ceil(log2 d) such products
-(each at most doubles the degree) and one rescale per level it consumes. A hoisted set of r rotations costs
-rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of 4). Everything else (encoding,
-level drops, scalar products, bias additions) is free.`
+const BoundDefinition = `lower bound: the work that the compiled program's layout cannot avoid, at the program's own levels, priced with
+primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its layout (of the
+blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions; rotations as the
+cheapest baby-step giant-step split of K over every baby-step count n1, in either orientation (baby steps k mod
+n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and
+are priced as full rotations; or the roles of the two swapped); a blocked layer's sum of D/B shifted copies
+priced as the cheapest staging of hoisted sets (log2(D/B) single rotations at most); one rescale per level at
+which it multiplies. Per ciphertext product one product with its relinearization and one rescale; per polynomial
+of degree d, ceil(log2 d) such products (each at most doubles the degree) and one rescale per level it consumes.
+A hoisted set of r rotations costs rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of
+4). Everything else (encoding, level drops, scalar products, bias additions) is free.`
 
 // Bound is the lower bound of one program's evaluation: see LowerBound.
 type Bound struct {
