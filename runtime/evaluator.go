@@ -369,9 +369,13 @@ func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphe
 			}
 			hp := p.hp
 			level, levelP := in.Level(), hp.MaxLevelP()
+			// The decomposition is made at the ciphertext's level: the
+			// limbs above it, which lattigo's full-size buffer also
+			// carries, are never read.
 			decomp := make([]ringqp.Poly, hp.BaseRNSDecompositionVectorSize(level, levelP))
+			ring := hp.RingQP().AtLevel(level, levelP)
 			for i := range decomp {
-				decomp[i] = hp.RingQP().NewPoly()
+				decomp[i] = ring.NewPoly()
 			}
 			l.ev.DecomposeNTT(level, levelP, hp.PCount(), in.Value[1], in.IsNTT, decomp)
 			for j, k := range ks {
