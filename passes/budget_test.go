@@ -21,15 +21,6 @@ func budgetSpecs(t *testing.T) []string {
 	return append(specs, "../testdata/demo/gearbox.yaml", "../testdata/mnist/digits.yaml")
 }
 
-// keyCount is the number of evaluation keys a compiled program needs.
-func keyCount(p *ir.Program) int {
-	n := len(p.Rotations)
-	if p.Relinearize {
-		n++
-	}
-	return n
-}
-
 // fileBytes is the size of a compiled program's evaluation-keys file.
 func fileBytes(p *ir.Program) int64 {
 	return keyFileBytes(p.Params, p.RotationLevels, p.Relinearize)

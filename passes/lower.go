@@ -279,12 +279,6 @@ func (b *builder) rotate(v ir.ValueID, k int, name string) ir.ValueID {
 	return r
 }
 
-// bestBabySteps is the baby-step count and rotation count of bestSplit.
-func bestBabySteps(diags map[int][]float64, D int) (n1, rotations int) {
-	sp := bestSplit(diags, D)
-	return sp.n1, sp.rotations
-}
-
 // blockDiags folds the diagonals of an Out×In matrix (diag_K[t] = W[t][(t+K)
 // mod D], t < Out) into B = nextPow2(Out) diagonals over the whole period:
 // h_k[r + mB] = diag_{mB+k}[r], so slot r + mB of Σ_k h_k ⊙ rot_k(x) is the

@@ -1,7 +1,5 @@
 package passes
 
-import "github.com/lanthorn/lanthorn/ir"
-
 // Method is how a linear layer multiplies its matrix with the encrypted
 // vector.
 type Method string
@@ -25,7 +23,3 @@ func useBlocks(chosen map[string]Method, name string, bsgsRotations, blockRotati
 	}
 	return blockRotations < bsgsRotations
 }
-
-// blocksApply reports whether lower can use the block method for l in a
-// layout of period D: only when its output is shorter than the period.
-func blocksApply(l *ir.Layer, D int) bool { return nextPow2(l.Out) < D }
