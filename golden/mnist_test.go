@@ -57,7 +57,7 @@ func mnistTest(t testing.TB) *GoMNIST.Set {
 	return set
 }
 
-// pixels scales an image to [0, 1], as train/main.go does.
+// pixels scales an image to [0, 1], as both trainers do.
 func pixels(img GoMNIST.RawImage) []float64 {
 	x := make([]float64, len(img))
 	for i, b := range img {
@@ -239,10 +239,9 @@ func mnistProgram(t testing.TB, m mnistModel, set *GoMNIST.Set, n int) (dir, bin
 // at least 97% of the 10,000 test images correctly (a comparable
 // square-activation network is reported near 99% in the literature; from
 // memory). Encrypted with the emitted program, the first 50 test images
-// (-mnist-images n for more, all 10,000 with -mnist-full; the log gives the
-// encrypted accuracy)
-// get the same argmax as the generator's float64 reference of the model
-// for at least 98% of them.
+// (-mnist-images n for more, all 10,000 with -mnist-full; the log gives
+// the encrypted accuracy) get the same argmax as the generator's float64
+// reference of the model for at least 98% of them.
 func TestMNIST(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds and runs the encrypted digit classifiers; skipped with -short")
