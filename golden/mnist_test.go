@@ -318,7 +318,7 @@ func checkMNIST(t *testing.T, m mnistModel, set *GoMNIST.Set, n int) {
 	t.Logf("%s, encrypted: %d MNIST test images, argmax agrees with float64 on %d (%.1f%%), %d correct (%.2f%% accuracy); max abs logit error %.3g; median evaluation %d ms (%d at a time)",
 		m.name, n, agree, 100*float64(agree)/float64(n), correct, 100*float64(correct)/float64(n), worst, times[len(times)/2], mnistWorkers)
 	require.GreaterOrEqual(t, float64(agree)/float64(n), 0.98, "argmax agreement with the float64 reference")
-	g, err := spec.Load(m.spec)
+	g, err := spec.Load(filepath.Join(repoRoot, filepath.FromSlash(m.spec)))
 	require.NoError(t, err)
 	require.LessOrEqual(t, worst, math.Ldexp(1, -g.Precision), "the precision target the parameters were sized for (%d bits)", g.Precision)
 }
