@@ -60,6 +60,9 @@ func bestSplit(diags map[int][]float64, D int) split {
 					seenG[D+g] = round
 					s.rotations++
 				}
+				if s.rotations >= best.rotations {
+					break // no better than the best: ties keep the earlier split
+				}
 			}
 			if s.rotations < best.rotations {
 				best = s
