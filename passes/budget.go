@@ -194,17 +194,7 @@ func topLevels(pr ir.Params, n int) []int {
 // it at (the level its key is made for); the top level for a step p does
 // not use.
 func stepLevels(p *ir.Program, steps []int) []int {
-	level := map[int]int{}
-	for _, op := range p.Ops {
-		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
-			at := p.Values[op.Args[0]].Level
-			for _, k := range op.Steps {
-				if old, ok := level[k]; !ok || at > old {
-					level[k] = at
-				}
-			}
-		}
-	}
+	level := rotationLevels(p)
 	out := make([]int, len(steps))
 	for i, k := range steps {
 		out[i] = p.Params.MaxLevel()

@@ -12,19 +12,11 @@ import (
 // it needs a relinearization key (ciphertext products and polynomials).
 func collectKeys(s *State) error {
 	p := s.Prog
-	level := map[int]int{}
+	level := rotationLevels(p)
 	p.Rotations, p.RotationLevels = nil, nil
 	p.Relinearize = false
 	for _, op := range p.Ops {
-		switch op.Kind {
-		case ir.OpRotate, ir.OpRotHoisted:
-			at := p.Values[op.Args[0]].Level
-			for _, k := range op.Steps {
-				if old, ok := level[k]; !ok || at > old {
-					level[k] = at
-				}
-			}
-		case ir.OpRelinearize, ir.OpPoly:
+		if op.Kind == ir.OpRelinearize || op.Kind == ir.OpPoly {
 			p.Relinearize = true
 		}
 	}
@@ -36,4 +28,22 @@ func collectKeys(s *State) error {
 		p.RotationLevels = append(p.RotationLevels, level[k])
 	}
 	return nil
+}
+
+// rotationLevels maps each rotation step a leveled program uses to the
+// highest level it rotates by that step at.
+func rotationLevels(p *ir.Program) map[int]int {
+	level := map[int]int{}
+	for _, op := range p.Ops {
+		if op.Kind != ir.OpRotate && op.Kind != ir.OpRotHoisted {
+			continue
+		}
+		at := p.Values[op.Args[0]].Level
+		for _, k := range op.Steps {
+			if old, ok := level[k]; !ok || at > old {
+				level[k] = at
+			}
+		}
+	}
+	return level
 }

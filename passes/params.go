@@ -124,8 +124,17 @@ func chooseParams(s *State) error {
 
 // programDepth is the number of levels the program consumes.
 func programDepth(p *ir.Program) int {
-	used := make([]int, len(p.Values))
 	depth := 0
+	for _, u := range levelsUsed(p) {
+		depth = max(depth, u)
+	}
+	return depth
+}
+
+// levelsUsed is, for every value of p, the levels consumed on the way from
+// the input to it: one per rescale, a polynomial's depth, a drop's count.
+func levelsUsed(p *ir.Program) []int {
+	used := make([]int, len(p.Values))
 	for _, op := range p.Ops {
 		u := 0
 		for _, a := range op.Args {
@@ -142,9 +151,8 @@ func programDepth(p *ir.Program) int {
 		for _, r := range op.Results {
 			used[r] = u
 		}
-		depth = max(depth, u)
 	}
-	return depth
+	return used
 }
 
 // noiseGain estimates how much the errors that encryption adds grow by the

@@ -187,24 +187,8 @@ func (p *segProgram) price(prof *Profile, logN, top int) float64 {
 		return c
 	}
 	prog := p.prog
-	used := make([]int, len(prog.Values))
-	for _, op := range prog.Ops {
-		u := 0
-		for _, a := range op.Args {
-			u = max(u, used[a])
-		}
-		switch op.Kind {
-		case ir.OpRescale:
-			u++
-		case ir.OpPoly:
-			u += ir.PolyDepth(len(prog.Consts[op.Const].Data) - 1)
-		case ir.OpDropLevel:
-			u += op.Drop
-		}
-		for _, r := range op.Results {
-			used[r] = u
-			prog.Values[r].Level = top - u
-		}
+	for i, u := range levelsUsed(prog) {
+		prog.Values[i].Level = top - u
 	}
 	prog.Params.LogN = logN
 	c := EstimateProgram(prog, prof).TotalMS

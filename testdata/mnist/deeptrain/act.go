@@ -4,6 +4,7 @@ import (
 	"math"
 
 	"github.com/lanthorn/lanthorn/ir"
+	"github.com/lanthorn/lanthorn/passes"
 )
 
 // activation is either the exact ReLU or the polynomial the encrypted
@@ -27,7 +28,7 @@ func relu() *activation { return &activation{} }
 
 func polyReLU(lo, hi float64, degree int) *activation {
 	f := func(x float64) float64 { return math.Max(x, 0) }
-	return &activation{poly: true, lo: lo, hi: hi, c: chebyshev(f, lo, hi, degree)}
+	return &activation{poly: true, lo: lo, hi: hi, c: passes.ChebyshevInterpolant(f, lo, hi, degree)}
 }
 
 func (a *activation) t(x float64) float64 { return (2*x - a.lo - a.hi) / (a.hi - a.lo) }
@@ -65,28 +66,4 @@ func (a *activation) slope(x float64) float64 {
 		u0, u1 = u1, 2*t*u1-u0
 	}
 	return d * 2 / (a.hi - a.lo)
-}
-
-// chebyshev returns c_0..c_d such that Σ c_j T_j(t), t = (2x − lo − hi)/(hi −
-// lo), interpolates f at the d+1 Chebyshev nodes of the first kind, as
-// passes.ChebyshevInterpolant does.
-func chebyshev(f func(float64) float64, lo, hi float64, d int) []float64 {
-	n := d + 1
-	fx := make([]float64, n)
-	theta := make([]float64, n)
-	for k := range n {
-		theta[k] = math.Pi * (float64(k) + 0.5) / float64(n)
-		t := math.Cos(theta[k])
-		fx[k] = f(lo + (hi-lo)*(t+1)/2)
-	}
-	c := make([]float64, n)
-	for j := range n {
-		var sum float64
-		for k := range n {
-			sum += fx[k] * math.Cos(float64(j)*theta[k])
-		}
-		c[j] = 2 * sum / float64(n)
-	}
-	c[0] /= 2
-	return c
 }
