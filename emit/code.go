@@ -327,6 +327,16 @@ func (e *emitter) stmt(g *jen.Group, op *ir.Op) {
 			rhs[i] = jen.Id(tmp).Index(jen.Lit(i))
 		}
 		g.List(lhs...).Op(":=").List(rhs...)
+	case ir.OpRotSum:
+		// Σ rot_{steps[i]}(terms[i]), one basis change for all.
+		terms := make([]jen.Code, len(op.Args))
+		steps := make([]jen.Code, len(op.Steps))
+		for i := range op.Args {
+			terms[i], steps[i] = arg(i), jen.Lit(op.Steps[i])
+		}
+		call("RotateSum",
+			jen.Line().Index().Op("*").Add(e.rtQual("Ciphertext")).Values(terms...),
+			jen.Line().Index().Int().Values(steps...).Op(",").Line())
 	case ir.OpMulPlain:
 		call("MulPlain", arg(0), cst())
 	case ir.OpAddPlain:

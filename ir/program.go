@@ -98,6 +98,7 @@ const (
 	OpInput       OpKind = "input"      // → one fresh ciphertext per input chunk
 	OpRotate      OpKind = "rotate"     // ct → ct rotated left by Steps[0]
 	OpRotHoisted  OpKind = "rothoisted" // ct → one result per Steps, one decomposition
+	OpRotSum      OpKind = "rotsum"     // ct, ct, … → Σ_i rot_{Steps[i]}(Args[i]) (step 0: unrotated), one basis change back for all
 	OpMulPlain    OpKind = "mulplain"   // ct, Const → ct
 	OpAddPlain    OpKind = "addplain"   // ct, Const → ct
 	OpAdd         OpKind = "add"        // ct, ct → ct

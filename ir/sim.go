@@ -94,6 +94,14 @@ func (p *Program) Simulate(x []float64) ([]float64, error) {
 			for i, s := range op.Steps {
 				vals[op.Results[i]] = rotate(arg(0), s)
 			}
+		case OpRotSum:
+			v := make([]float64, p.Period)
+			for i, s := range op.Steps {
+				for j, x := range rotate(arg(i), s) {
+					v[j] += x
+				}
+			}
+			set(v)
 		case OpMulPlain, OpAddPlain, OpAdd, OpMul:
 			b := []float64(nil)
 			if op.Kind == OpMulPlain || op.Kind == OpAddPlain {

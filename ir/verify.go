@@ -200,6 +200,12 @@ func VerifyProgram(p *Program, stage Stage) error {
 			if needDegree1 && degree[op.Args[0]] != 1 {
 				fail(op, "needs a degree-1 ciphertext, has degree %d", degree[op.Args[0]])
 			}
+		case OpRotSum:
+			for _, a := range op.Args {
+				if needDegree1 && degree[a] != 1 {
+					fail(op, "needs degree-1 ciphertexts, one has degree %d", degree[a])
+				}
+			}
 		case OpMul:
 			if needDegree1 && (degree[op.Args[0]] != 1 || degree[op.Args[1]] != 1) {
 				fail(op, "multiplies a ciphertext of degree above 1")
@@ -228,6 +234,24 @@ func VerifyProgram(p *Program, stage Stage) error {
 			}
 			if op.Kind == OpRotHoisted && len(op.Steps) != len(op.Results) {
 				fail(op, "%d steps for %d results", len(op.Steps), len(op.Results))
+			}
+		}
+		if op.Kind == OpRotSum {
+			if len(op.Steps) != len(op.Args) {
+				fail(op, "%d steps for %d terms", len(op.Steps), len(op.Args))
+			}
+			rotated := 0
+			for _, s := range op.Steps {
+				if s < 0 || s >= p.Period {
+					fail(op, "rotation %d outside [0, period %d)", s, p.Period)
+				}
+				if s != 0 {
+					used[s] = true
+					rotated++
+				}
+			}
+			if rotated == 0 {
+				fail(op, "no term is rotated")
 			}
 		}
 		for _, r := range op.Results {
@@ -265,10 +289,13 @@ func VerifyProgram(p *Program, stage Stage) error {
 			errs = append(errs, fmt.Errorf("%d rotation key levels for %d keys", len(p.RotationLevels), len(p.Rotations)))
 		} else {
 			for _, op := range p.Ops {
-				if op.Kind != OpRotate && op.Kind != OpRotHoisted {
+				if op.Kind != OpRotate && op.Kind != OpRotHoisted && op.Kind != OpRotSum {
 					continue
 				}
 				for _, s := range op.Steps {
+					if s == 0 {
+						continue // an unrotated term of a rotsum
+					}
 					i, _ := slices.BinarySearch(p.Rotations, s)
 					if at := p.Values[op.Args[0]].Level; at > p.RotationLevels[i] {
 						errs = append(errs, fmt.Errorf("%s: rotates at level %d, its key is made for level %d", p.FormatOp(op), at, p.RotationLevels[i]))
@@ -310,6 +337,10 @@ func verifyLevels(p *Program, op *Op, fail func(*Op, string, ...any)) {
 	case OpRotate, OpRotHoisted, OpRelinearize:
 		for i := range op.Results {
 			same(arg(0), res(i), "operand and result")
+		}
+	case OpRotSum:
+		for i := range op.Args {
+			same(arg(i), res(0), "term and result")
 		}
 	case OpAdd:
 		same(arg(0), arg(1), "operands")
@@ -371,7 +402,7 @@ func (p *Program) InferDegrees() {
 			d = 2
 		case OpAdd:
 			d = max(p.Values[op.Args[0]].Degree, p.Values[op.Args[1]].Degree)
-		case OpMulPlain, OpAddPlain, OpDropLevel, OpRescale, OpRotate, OpRotHoisted:
+		case OpMulPlain, OpAddPlain, OpDropLevel, OpRescale, OpRotate, OpRotHoisted, OpRotSum:
 			d = p.Values[op.Args[0]].Degree
 		}
 		for _, r := range op.Results {
@@ -420,6 +451,8 @@ func arity(p *Program, op *Op) (args, results int) {
 		return p.Output.Count(), 0
 	case OpRotHoisted:
 		return 1, -1
+	case OpRotSum:
+		return max(len(op.Args), 2), 1
 	case OpAdd, OpMul:
 		return 2, 1
 	default:

@@ -168,6 +168,8 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 					if u.Kind == ir.OpRotate {
 						post += u.Steps[0]
 						onPath[u] = true
+					} else if u.Kind == ir.OpRotSum {
+						post += u.Steps[slices.Index(u.Args, cur)]
 					} else if u.Kind != ir.OpAdd && u.Kind != ir.OpAddPlain && u.Kind != ir.OpRescale &&
 						u.Kind != ir.OpRelinearize && u.Kind != ir.OpDropLevel {
 						break
@@ -246,9 +248,10 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 						nb += r
 					}
 					for _, sum := range sumOrder { // one rotation per step of each sum
-						ng += distinct(sums[sum], func(d int) int { return f.sum(d, n1) })
+						n := distinct(sums[sum], func(d int) int { return f.sum(d, n1) })
+						ms += giantMS(prof, logN, l, n)
+						ng += n
 					}
-					ms += float64(ng) * cost(CostRotate, l)
 					if ms < best {
 						best, bl.Split, bl.BabySteps, bl.GiantSteps, bl.Transposed = ms, n1, nb, ng, form == 1
 					}
@@ -387,4 +390,15 @@ func (b *Bound) String() string {
 		parts = append(parts, s+fmt.Sprintf(", %.1f ms", l.MS))
 	}
 	return strings.Join(parts, "; ")
+}
+
+// giantMS is the cost in ms of n giant steps of one sum at level ℓ: n full
+// rotations, or, for two or more, one rotate-sum of n terms where that is
+// cheaper.
+func giantMS(prof *Profile, logN, level, n int) float64 {
+	per := prof.Cost(CostRotate, logN, level)
+	if n >= 2 {
+		per = math.Min(per, rotSumTerm(prof, logN, level))
+	}
+	return float64(n) * per / 1e6
 }

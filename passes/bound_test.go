@@ -158,6 +158,8 @@ func programMS(p *ir.Program, prof *Profile) float64 {
 			ms += c(CostRotate)
 		case ir.OpRotHoisted:
 			ms += hoistedMS(prof, logN, l, len(op.Steps))
+		case ir.OpRotSum:
+			ms += rotSumCost(prof, logN, l, op.Steps) / 1e6
 		case ir.OpPoly:
 			ms += polyCost(prof, logN, l, len(p.Consts[op.Const].Data)-1) / 1e6
 		}

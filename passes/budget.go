@@ -140,8 +140,15 @@ func keyBudget(s *State) error {
 func rotationCount(p *ir.Program) int {
 	n := 0
 	for _, op := range p.Ops {
-		if op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted {
+		switch op.Kind {
+		case ir.OpRotate, ir.OpRotHoisted:
 			n += len(op.Steps)
+		case ir.OpRotSum:
+			for _, k := range op.Steps {
+				if k != 0 {
+					n++
+				}
+			}
 		}
 	}
 	return n

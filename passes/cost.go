@@ -21,9 +21,18 @@ const (
 	CostRotate   = "rotate"
 	CostHoisted  = "hoisted" // HoistedSteps rotations sharing one decomposition
 	CostEncode   = "encode"
+	// CostRotSum is a rotate-sum of HoistedSteps rotated terms: their key
+	// switches summed in the extended basis, one basis change back.
+	// Profiles written before it was measured lack it; a rotate-sum is
+	// then priced as its rotations.
+	CostRotSum = "rotsum"
 )
 
 var costOps = []string{CostAdd, CostMulPlain, CostMulRelin, CostRescale, CostRotate, CostHoisted, CostEncode}
+
+// fitOps are the primitives calibrate measures: the required ones and
+// those a profile may lack.
+var fitOps = append(slices.Clone(costOps), CostRotSum)
 
 // Profile is a cost model: for each primitive and ring degree, its median
 // time in nanoseconds at a few measured levels. Between measured levels the
@@ -124,6 +133,7 @@ func FitProfile(machine string, ts []runtime.OpTiming) (*Profile, error) {
 		CostRotate:   func(t runtime.OpTiming) float64 { return t.Rotate },
 		CostHoisted:  func(t runtime.OpTiming) float64 { return t.Hoisted },
 		CostEncode:   func(t runtime.OpTiming) float64 { return t.Encode },
+		CostRotSum:   func(t runtime.OpTiming) float64 { return t.RotSum },
 	}
 	p := &Profile{Machine: machine, Ops: map[string]map[int][]Point{}}
 	count := map[int]int{}
@@ -135,7 +145,10 @@ func FitProfile(machine string, ts []runtime.OpTiming) (*Profile, error) {
 			return nil, fmt.Errorf("calibrate: logN %d measured at %d levels, need at least 2", n, c)
 		}
 	}
-	for _, op := range costOps {
+	for _, op := range fitOps {
+		if !slices.Contains(costOps, op) && !slices.ContainsFunc(ts, func(t runtime.OpTiming) bool { return get[op](t) > 0 }) {
+			continue // an optional primitive these timings do not have
+		}
 		p.Ops[op] = map[int][]Point{}
 		for _, t := range ts {
 			p.Ops[op][t.LogN] = append(p.Ops[op][t.LogN], Point{Level: t.Level, NS: math.Round(get[op](t))})
@@ -179,6 +192,8 @@ func EstimateProgram(p *ir.Program, prof *Profile) Estimate {
 			ns = prof.Cost(CostRotate, logN, level)
 		case ir.OpRotHoisted:
 			ns = prof.Cost(CostHoisted, logN, level) * float64(len(op.Steps)) / runtime.HoistedSteps
+		case ir.OpRotSum:
+			ns = rotSumCost(prof, logN, level, op.Steps)
 		case ir.OpPoly:
 			ns = polyCost(prof, logN, level, len(p.Consts[op.Const].Data)-1)
 		}
@@ -201,4 +216,26 @@ func polyCost(prof *Profile, logN, level, d int) float64 {
 	mid := max(level-k/2, 0)
 	return float64(products)*(prof.Cost(CostMulRelin, logN, mid)+prof.Cost(CostRescale, logN, mid)) +
 		float64(d+1)*(prof.Cost(CostMulPlain, logN, mid)+prof.Cost(CostAdd, logN, mid))
+}
+
+// rotSumCost prices a rotate-sum: its rotated terms at the measured cost
+// per term (the rotations' cost where the profile has no rotate-sum), and
+// the additions that join its terms, as the ops it replaces are priced.
+func rotSumCost(prof *Profile, logN, level int, steps []int) float64 {
+	rotated := 0
+	for _, s := range steps {
+		if s != 0 {
+			rotated++
+		}
+	}
+	return float64(rotated)*rotSumTerm(prof, logN, level) + float64(len(steps)-1)*prof.Cost(CostAdd, logN, level)
+}
+
+// rotSumTerm is the cost in ns of one rotated term of a rotate-sum: the
+// measured rotate-sum per term, or a rotation where the profile has none.
+func rotSumTerm(prof *Profile, logN, level int) float64 {
+	if len(prof.Ops[CostRotSum]) > 0 {
+		return prof.Cost(CostRotSum, logN, level) / runtime.HoistedSteps
+	}
+	return prof.Cost(CostRotate, logN, level)
 }

@@ -35,11 +35,14 @@ func collectKeys(s *State) error {
 func rotationLevels(p *ir.Program) map[int]int {
 	level := map[int]int{}
 	for _, op := range p.Ops {
-		if op.Kind != ir.OpRotate && op.Kind != ir.OpRotHoisted {
+		if op.Kind != ir.OpRotate && op.Kind != ir.OpRotHoisted && op.Kind != ir.OpRotSum {
 			continue
 		}
 		at := p.Values[op.Args[0]].Level
 		for _, k := range op.Steps {
+			if k == 0 {
+				continue // an unrotated term of a rotate-sum
+			}
 			if old, ok := level[k]; !ok || at > old {
 				level[k] = at
 			}

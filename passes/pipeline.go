@@ -46,6 +46,8 @@ var Pipeline = []Pass{
 		Why: "assign levels and exact scales; encode plaintexts at the scale of the prime the next rescale drops"},
 	{Name: "key-budget", Run: keyBudget, Stage: ir.Leveled,
 		Why: "under a key budget, keep fewer rotation keys; nest sums of rotations and compose the other rotations as chains of them"},
+	{Name: "sum-rotations", Run: sumRotations, Stage: ir.Leveled,
+		Why: "a sum of rotations becomes one rotate-sum: the key switches are added in the extended basis and brought down once"},
 	{Name: "keys", Run: collectKeys, Required: true, Stage: ir.Keyed,
 		Why: "the Galois key set is exactly the rotations used"},
 	{Name: "names", Run: nameValues, Required: true, Stage: ir.Keyed,
@@ -69,6 +71,9 @@ var Order = []struct{ Before, After, Why string }{
 	{"output-mask", "rescale", "a mask that is a plaintext product gets its rescale placed with the others, and params counts its level"},
 	{"levels", "key-budget", "each rotation is weighted by its level's cost, and keys are sized by the chain params chose"},
 	{"key-budget", "keys", "the key set is collected from the rotations the budget leaves"},
+	{"key-budget", "sum-rotations", "the budget rewrites single rotations; they merge only after it"},
+	{"levels", "sum-rotations", "the terms of a sum meet at one level and scale once drops are placed"},
+	{"sum-rotations", "keys", "keys are collected from the rotate-sums too"},
 }
 
 // Options are the per-run settings of one compilation.

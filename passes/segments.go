@@ -191,7 +191,11 @@ func (p *segProgram) price(prof *Profile, logN, top int) float64 {
 		prog.Values[i].Level = top - u
 	}
 	prog.Params.LogN = logN
-	c := EstimateProgram(prog, prof).TotalMS
+	// Its sums of rotations are priced as the rotate-sums sum-rotations
+	// makes of them in the compiled program.
+	merged := snapshot(prog)
+	mergeRotationSums(merged)
+	c := EstimateProgram(merged, prof).TotalMS
 	p.cost[key] = c
 	return c
 }

@@ -118,6 +118,12 @@ func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Progra
 	chs, alts := se.choices(g, opts, best)
 	for round := 0; round < 8 && opts.MaxKeyBytes == 0; round++ {
 		next := best
+		// The search's key bytes are an upper bound (keys summed per
+		// segment): under that objective, also try the choice with one
+		// method or degree decided otherwise and the rest kept.
+		if obj == KeyBytes {
+			alts = append(alts, se.flips(g, opts, best)...)
+		}
 		for _, a := range alts {
 			if better(se.exact(a.c), se.exact(next.c), obj) {
 				next = a
@@ -242,6 +248,30 @@ func (se *searcher) choices(g *ir.Graph, opts Options, chosen compiled) ([]Choic
 		out = append(out, ch)
 	}
 	return out, runnerUps
+}
+
+// flips compiles the chosen solution with each of its method and degree
+// decisions made otherwise, one at a time, the others kept.
+func (se *searcher) flips(g *ir.Graph, opts Options, chosen compiled) []compiled {
+	keys, _ := se.decisions(chosen.sol)
+	var out []compiled
+	for _, k := range keys {
+		c, ok := se.flipChoice(chosen.sol, k)
+		if !ok {
+			continue
+		}
+		sols, _ := se.search(c)
+		if len(sols) > maxRunnerUps {
+			sols = sols[:maxRunnerUps]
+		}
+		for _, a := range se.compileAll(g, opts, sols) {
+			if a.c.Err == nil {
+				out = append(out, a)
+				break
+			}
+		}
+	}
+	return out
 }
 
 // maxRunnerUps bounds the solutions compiled per decision to find its

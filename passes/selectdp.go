@@ -345,5 +345,28 @@ func (se *searcher) forbidChoice(sol *solution, key string) constraint {
 	return constraint{forbid: func(*segment) bool { return true }}
 }
 
+// flipChoice is the constraint that keeps every segment of sol but the
+// one deciding key, a method or degree decision, which must decide
+// otherwise; false for other decisions.
+func (se *searcher) flipChoice(sol *solution, key string) (constraint, bool) {
+	in := map[*segment]bool{}
+	for _, s := range sol.segs {
+		in[s] = true
+	}
+	for _, s := range sol.segs {
+		if key != s.name+": method" && key != s.name+": degree" {
+			continue
+		}
+		chosen := s
+		return constraint{forbid: func(t *segment) bool {
+			if t.from == chosen.from && t.to == chosen.to {
+				return t == chosen
+			}
+			return !in[t]
+		}}, true
+	}
+	return constraint{}, false
+}
+
 // inf is the score of nothing.
 var inf = score{ms: math.Inf(1), keys: math.MaxInt64}

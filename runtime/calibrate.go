@@ -20,6 +20,7 @@ type OpTiming struct {
 	Rescale     float64
 	Rotate      float64 // one rotation: a full key switch
 	Hoisted     float64 // RotateHoisted with HoistedSteps steps, all together
+	RotSum      float64 // RotateSum of HoistedSteps rotated terms, all together
 	Encode      float64 // encoding one plaintext vector at this level
 }
 
@@ -83,6 +84,8 @@ func MeasureOps(logN int, logQ, logP []int, levels []int, reps int) (out []OpTim
 		t.Rescale = median(reps, func() { ev.Rescale(prod) })
 		t.Rotate = median(reps, func() { ev.Rotate(ct, 1) })
 		t.Hoisted = median(reps, func() { ev.RotateHoisted(ct, steps...) })
+		terms := []*Ciphertext{ct, ct, ct, ct}
+		t.RotSum = median(reps, func() { ev.RotateSum(terms, steps) })
 		t.Encode = median(reps, func() { enc.Plaintext("v", level, scale, p.Slots()) })
 		if err := errors.Join(ev.Err(), enc.Err()); err != nil {
 			return nil, err

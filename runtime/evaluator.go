@@ -33,6 +33,7 @@ type Evaluator struct {
 	ops     int
 	threads int
 	pool    *pool // nil with one thread: each op runs when it is called
+	lane    *lane // the one-thread lane, made on first use
 }
 
 // NewEvaluator makes a one-thread evaluator with the evaluation keys k (nil
@@ -163,7 +164,10 @@ func (e *Evaluator) do(name func() string, args []*Ciphertext, op func(l *lane) 
 	}
 	seq := e.ops
 	if e.pool == nil {
-		out, err := runOp(op, &lane{ev: e.ev, poly: e.poly})
+		if e.lane == nil {
+			e.lane = &lane{ev: e.ev, poly: e.poly}
+		}
+		out, err := runOp(op, e.lane)
 		if err != nil {
 			e.err = fmt.Errorf("op %d (%s): %w", seq, name(), err)
 			return nil

@@ -5,7 +5,10 @@ import (
 	"fmt"
 	"sync"
 
+	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 	"github.com/tuneinsight/lattigo/v5/he/hefloat"
+	"github.com/tuneinsight/lattigo/v5/ring"
+	"github.com/tuneinsight/lattigo/v5/ring/ringqp"
 )
 
 // An Evaluator made with more than one thread runs its ops as dataflow
@@ -42,6 +45,28 @@ import (
 type lane struct {
 	ev   *hefloat.Evaluator
 	poly *hefloat.PolynomialEvaluator
+
+	// Scratch space of RotateSum, made on first use at the top level.
+	qp *rlwe.Element[ringqp.Poly]
+	q  ring.Poly
+}
+
+// scratchQP is the lane's key-switching scratch element, mod QP at the top
+// level (lattigo's level-aware ops read only the limbs they need).
+func (l *lane) scratchQP(hp hefloat.Parameters) *rlwe.Element[ringqp.Poly] {
+	if l.qp == nil {
+		l.qp = rlwe.NewElementExtended(hp, 1, hp.MaxLevel(), hp.MaxLevelP())
+		l.qp.IsNTT = true
+	}
+	return l.qp
+}
+
+// scratchQ is the lane's scratch polynomial mod Q at the top level.
+func (l *lane) scratchQ(hp hefloat.Parameters) ring.Poly {
+	if l.q.Level() < 0 || len(l.q.Coeffs) == 0 {
+		l.q = hp.RingQ().NewPoly()
+	}
+	return l.q
 }
 
 func newLane(p *Params, ev *hefloat.Evaluator) *lane {

@@ -41,6 +41,13 @@ type Plaintexts struct {
 	Dense2Diag7  *runtime.Plaintext  // level 3, scale q3
 	Dense2Bias   *runtime.Plaintext  // level 3, scale 2^40·q3
 	Dense3Diag0  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag1  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag2  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag3  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag4  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag5  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag6  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
+	Dense3Diag7  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
 	Dense3Bias   *runtime.Plaintext  // level 1, scale 2^40·q1
 }
 
@@ -87,6 +94,13 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Dense2Diag7 = enc.Plaintext("dense2.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
 	pt.Dense2Bias = enc.Plaintext("dense2.bias", 3, runtime.Scale{Pow2: 40, Num: []int{3}}, 16)
 	pt.Dense3Diag0 = enc.Plaintext("dense3.diag0", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag1 = enc.Plaintext("dense3.diag1", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag2 = enc.Plaintext("dense3.diag2", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag3 = enc.Plaintext("dense3.diag3", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag4 = enc.Plaintext("dense3.diag4", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag5 = enc.Plaintext("dense3.diag5", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag6 = enc.Plaintext("dense3.diag6", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag7 = enc.Plaintext("dense3.diag7", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
 	pt.Dense3Bias = enc.Plaintext("dense3.bias", 1, runtime.Scale{Pow2: 40, Num: []int{1}}, 16)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
@@ -126,8 +140,6 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Block4Sum2 := ev.Add(dense1Block4Sum, dense1Prod6)
 	dense1Prod7 := ev.MulPlain(dense1Rot3, pt.Dense1Diag7)
 	dense1Block4Sum3 := ev.Add(dense1Block4Sum2, dense1Prod7)
-	dense1Block4Rot := ev.Rotate(dense1Block4Sum3, 4)
-	dense1Acc4 := ev.Add(dense1Block0Sum3, dense1Block4Rot)
 	dense1Prod8 := ev.MulPlain(features, pt.Dense1Diag8)
 	dense1Prod9 := ev.MulPlain(dense1Rot1, pt.Dense1Diag9)
 	dense1Block8Sum := ev.Add(dense1Prod8, dense1Prod9)
@@ -135,8 +147,6 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Block8Sum2 := ev.Add(dense1Block8Sum, dense1Prod10)
 	dense1Prod11 := ev.MulPlain(dense1Rot3, pt.Dense1Diag11)
 	dense1Block8Sum3 := ev.Add(dense1Block8Sum2, dense1Prod11)
-	dense1Block8Rot := ev.Rotate(dense1Block8Sum3, 8)
-	dense1Acc8 := ev.Add(dense1Acc4, dense1Block8Rot)
 	dense1Prod12 := ev.MulPlain(features, pt.Dense1Diag12)
 	dense1Prod13 := ev.MulPlain(dense1Rot1, pt.Dense1Diag13)
 	dense1Block12Sum := ev.Add(dense1Prod12, dense1Prod13)
@@ -144,8 +154,10 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Block12Sum2 := ev.Add(dense1Block12Sum, dense1Prod14)
 	dense1Prod15 := ev.MulPlain(dense1Rot3, pt.Dense1Diag15)
 	dense1Block12Sum3 := ev.Add(dense1Block12Sum2, dense1Prod15)
-	dense1Block12Rot := ev.Rotate(dense1Block12Sum3, 12)
-	dense1Acc12 := ev.Add(dense1Acc8, dense1Block12Rot)
+	dense1Acc12 := ev.RotateSum(
+		[]*runtime.Ciphertext{dense1Block0Sum3, dense1Block4Sum3, dense1Block8Sum3, dense1Block12Sum3},
+		[]int{0, 4, 8, 12},
+	)
 	dense1Out := ev.AddPlain(dense1Acc12, pt.Dense1Bias)
 	dense1OutRescaled := ev.Rescale(dense1Out)
 
@@ -161,18 +173,16 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense2Prod2 := ev.MulPlain(act1Out, pt.Dense2Diag2)
 	dense2Prod3 := ev.MulPlain(dense2Rot1, pt.Dense2Diag3)
 	dense2Block2Sum := ev.Add(dense2Prod2, dense2Prod3)
-	dense2Block2Rot := ev.Rotate(dense2Block2Sum, 2)
-	dense2Acc2 := ev.Add(dense2Block0Sum, dense2Block2Rot)
 	dense2Prod4 := ev.MulPlain(act1Out, pt.Dense2Diag4)
 	dense2Prod5 := ev.MulPlain(dense2Rot1, pt.Dense2Diag5)
 	dense2Block4Sum := ev.Add(dense2Prod4, dense2Prod5)
-	dense2Block4Rot := ev.Rotate(dense2Block4Sum, 4)
-	dense2Acc4 := ev.Add(dense2Acc2, dense2Block4Rot)
 	dense2Prod6 := ev.MulPlain(act1Out, pt.Dense2Diag6)
 	dense2Prod7 := ev.MulPlain(dense2Rot1, pt.Dense2Diag7)
 	dense2Block6Sum := ev.Add(dense2Prod6, dense2Prod7)
-	dense2Block6Rot := ev.Rotate(dense2Block6Sum, 6)
-	dense2Acc6 := ev.Add(dense2Acc4, dense2Block6Rot)
+	dense2Acc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{dense2Block0Sum, dense2Block2Sum, dense2Block4Sum, dense2Block6Sum},
+		[]int{0, 2, 4, 6},
+	)
 	dense2Fold8Rot := ev.Rotate(dense2Acc6, 8)
 	dense2Folded8 := ev.Add(dense2Acc6, dense2Fold8Rot)
 	dense2Out := ev.AddPlain(dense2Folded8, pt.Dense2Bias)
@@ -183,17 +193,26 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	act2SqRelin := ev.Relinearize(act2Sq)
 	act2SqRelinRescaled := ev.Rescale(act2SqRelin)
 
-	// gearbox.yaml:73:5 dense3: dense 8→1 (in blocks of 1) · level 1→0 · 4 rotations · baby-step giant-step 1×16 · 1 plaintext multiplication · 1 rescale
+	// gearbox.yaml:73:5 dense3: dense 8→1 · level 1→0 · 4 rotations · baby-step giant-step 2×8 · 8 plaintext multiplications · 1 rescale
+	act2SqRelinRescaledHoisted := ev.RotateHoisted(act2SqRelinRescaled, 1)
+	dense3Rot1 := act2SqRelinRescaledHoisted[0]
 	dense3Prod0 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag0)
-	dense3Fold1Rot := ev.Rotate(dense3Prod0, 1)
-	dense3Folded1 := ev.Add(dense3Prod0, dense3Fold1Rot)
-	dense3Fold2Rot := ev.Rotate(dense3Folded1, 2)
-	dense3Folded2 := ev.Add(dense3Folded1, dense3Fold2Rot)
-	dense3Fold4Rot := ev.Rotate(dense3Folded2, 4)
-	dense3Folded4 := ev.Add(dense3Folded2, dense3Fold4Rot)
-	dense3Fold8Rot := ev.Rotate(dense3Folded4, 8)
-	dense3Folded8 := ev.Add(dense3Folded4, dense3Fold8Rot)
-	dense3Out := ev.AddPlain(dense3Folded8, pt.Dense3Bias)
+	dense3Prod1 := ev.MulPlain(dense3Rot1, pt.Dense3Diag1)
+	dense3Block0Sum := ev.Add(dense3Prod0, dense3Prod1)
+	dense3Prod2 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag2)
+	dense3Prod3 := ev.MulPlain(dense3Rot1, pt.Dense3Diag3)
+	dense3Block2Sum := ev.Add(dense3Prod2, dense3Prod3)
+	dense3Prod4 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag4)
+	dense3Prod5 := ev.MulPlain(dense3Rot1, pt.Dense3Diag5)
+	dense3Block4Sum := ev.Add(dense3Prod4, dense3Prod5)
+	dense3Prod6 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag6)
+	dense3Prod7 := ev.MulPlain(dense3Rot1, pt.Dense3Diag7)
+	dense3Block6Sum := ev.Add(dense3Prod6, dense3Prod7)
+	dense3Acc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{dense3Block0Sum, dense3Block2Sum, dense3Block4Sum, dense3Block6Sum},
+		[]int{0, 2, 4, 6},
+	)
+	dense3Out := ev.AddPlain(dense3Acc6, pt.Dense3Bias)
 	dense3OutRescaled := ev.Rescale(dense3Out)
 
 	return []*runtime.Ciphertext{dense3OutRescaled}, ev.Err()

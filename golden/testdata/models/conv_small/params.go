@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 4295049217, 4295294977, 4295344129},
 	P:        []uint64{281474976694273},
 	LogScale: 32,
-	ModelID:  "d6ca59d24cac8d19dfa5100556f79bb5",
+	ModelID:  "86f99be98729c0485b40c8720de4d239",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

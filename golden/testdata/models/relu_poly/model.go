@@ -98,18 +98,16 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	hiddenProd2 := ev.MulPlain(x2, pt.HiddenDiag2)
 	hiddenProd3 := ev.MulPlain(hiddenRot1, pt.HiddenDiag3)
 	hiddenBlock2Sum := ev.Add(hiddenProd2, hiddenProd3)
-	hiddenBlock2Rot := ev.Rotate(hiddenBlock2Sum, 2)
-	hiddenAcc2 := ev.Add(hiddenBlock0Sum, hiddenBlock2Rot)
 	hiddenProd4 := ev.MulPlain(x2, pt.HiddenDiag4)
 	hiddenProd5 := ev.MulPlain(hiddenRot1, pt.HiddenDiag5)
 	hiddenBlock4Sum := ev.Add(hiddenProd4, hiddenProd5)
-	hiddenBlock4Rot := ev.Rotate(hiddenBlock4Sum, 4)
-	hiddenAcc4 := ev.Add(hiddenAcc2, hiddenBlock4Rot)
 	hiddenProd6 := ev.MulPlain(x2, pt.HiddenDiag6)
 	hiddenProd7 := ev.MulPlain(hiddenRot1, pt.HiddenDiag7)
 	hiddenBlock6Sum := ev.Add(hiddenProd6, hiddenProd7)
-	hiddenBlock6Rot := ev.Rotate(hiddenBlock6Sum, 6)
-	hiddenAcc6 := ev.Add(hiddenAcc4, hiddenBlock6Rot)
+	hiddenAcc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{hiddenBlock0Sum, hiddenBlock2Sum, hiddenBlock4Sum, hiddenBlock6Sum},
+		[]int{0, 2, 4, 6},
+	)
 	hiddenOut := ev.AddPlain(hiddenAcc6, pt.HiddenBias)
 	hiddenOutRescaled := ev.Rescale(hiddenOut)
 
@@ -138,11 +136,11 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// relu_poly.yaml:41:5 head: dense 3→1 · level 1→0 · 2 rotations · baby-step giant-step 1×8 · 3 plaintext multiplications · 1 rescale
 	headProd0 := ev.MulPlain(bendOut, pt.HeadDiag0)
 	headProd1 := ev.MulPlain(bendOut, pt.HeadDiag1)
-	headBlock1Rot := ev.Rotate(headProd1, 1)
-	headAcc1 := ev.Add(headProd0, headBlock1Rot)
 	headProd2 := ev.MulPlain(bendOut, pt.HeadDiag2)
-	headBlock2Rot := ev.Rotate(headProd2, 2)
-	headAcc2 := ev.Add(headAcc1, headBlock2Rot)
+	headAcc2 := ev.RotateSum(
+		[]*runtime.Ciphertext{headProd0, headProd1, headProd2},
+		[]int{0, 1, 2},
+	)
 	headAcc2Rescaled := ev.Rescale(headAcc2)
 
 	return []*runtime.Ciphertext{headAcc2Rescaled}, ev.Err()

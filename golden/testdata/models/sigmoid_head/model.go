@@ -92,18 +92,16 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	hiddenProd2 := ev.MulPlain(x2, pt.HiddenDiag2)
 	hiddenProd3 := ev.MulPlain(hiddenRot1, pt.HiddenDiag3)
 	hiddenBlock2Sum := ev.Add(hiddenProd2, hiddenProd3)
-	hiddenBlock2Rot := ev.Rotate(hiddenBlock2Sum, 2)
-	hiddenAcc2 := ev.Add(hiddenBlock0Sum, hiddenBlock2Rot)
 	hiddenProd4 := ev.MulPlain(x2, pt.HiddenDiag4)
 	hiddenProd5 := ev.MulPlain(hiddenRot1, pt.HiddenDiag5)
 	hiddenBlock4Sum := ev.Add(hiddenProd4, hiddenProd5)
-	hiddenBlock4Rot := ev.Rotate(hiddenBlock4Sum, 4)
-	hiddenAcc4 := ev.Add(hiddenAcc2, hiddenBlock4Rot)
 	hiddenProd6 := ev.MulPlain(x2, pt.HiddenDiag6)
 	hiddenProd7 := ev.MulPlain(hiddenRot1, pt.HiddenDiag7)
 	hiddenBlock6Sum := ev.Add(hiddenProd6, hiddenProd7)
-	hiddenBlock6Rot := ev.Rotate(hiddenBlock6Sum, 6)
-	hiddenAcc6 := ev.Add(hiddenAcc4, hiddenBlock6Rot)
+	hiddenAcc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{hiddenBlock0Sum, hiddenBlock2Sum, hiddenBlock4Sum, hiddenBlock6Sum},
+		[]int{0, 2, 4, 6},
+	)
 	hiddenOut := ev.AddPlain(hiddenAcc6, pt.HiddenBias)
 	hiddenOutRescaled := ev.Rescale(hiddenOut)
 

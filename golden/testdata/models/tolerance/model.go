@@ -102,18 +102,16 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	hiddenProd2 := ev.MulPlain(input, pt.HiddenDiag2)
 	hiddenProd3 := ev.MulPlain(hiddenRot1, pt.HiddenDiag3)
 	hiddenBlock2Sum := ev.Add(hiddenProd2, hiddenProd3)
-	hiddenBlock2Rot := ev.Rotate(hiddenBlock2Sum, 2)
-	hiddenAcc2 := ev.Add(hiddenBlock0Sum, hiddenBlock2Rot)
 	hiddenProd4 := ev.MulPlain(input, pt.HiddenDiag4)
 	hiddenProd5 := ev.MulPlain(hiddenRot1, pt.HiddenDiag5)
 	hiddenBlock4Sum := ev.Add(hiddenProd4, hiddenProd5)
-	hiddenBlock4Rot := ev.Rotate(hiddenBlock4Sum, 4)
-	hiddenAcc4 := ev.Add(hiddenAcc2, hiddenBlock4Rot)
 	hiddenProd6 := ev.MulPlain(input, pt.HiddenDiag6)
 	hiddenProd7 := ev.MulPlain(hiddenRot1, pt.HiddenDiag7)
 	hiddenBlock6Sum := ev.Add(hiddenProd6, hiddenProd7)
-	hiddenBlock6Rot := ev.Rotate(hiddenBlock6Sum, 6)
-	hiddenAcc6 := ev.Add(hiddenAcc4, hiddenBlock6Rot)
+	hiddenAcc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{hiddenBlock0Sum, hiddenBlock2Sum, hiddenBlock4Sum, hiddenBlock6Sum},
+		[]int{0, 2, 4, 6},
+	)
 	hiddenOut := ev.AddPlain(hiddenAcc6, pt.HiddenBias)
 	hiddenOutRescaled := ev.Rescale(hiddenOut)
 
@@ -148,11 +146,11 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	headProd2 := ev.MulPlain(rectifyOut, pt.HeadDiag2)
 	headProd3 := ev.MulPlain(headRot1, pt.HeadDiag3)
 	headBlock2Sum := ev.Add(headProd2, headProd3)
-	headBlock2Rot := ev.Rotate(headBlock2Sum, 2)
-	headAcc2 := ev.Add(headBlock0Sum, headBlock2Rot)
 	headProd7 := ev.MulPlain(headRot1, pt.HeadDiag7)
-	headBlock6Rot := ev.Rotate(headProd7, 6)
-	headAcc6 := ev.Add(headAcc2, headBlock6Rot)
+	headAcc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{headBlock0Sum, headBlock2Sum, headProd7},
+		[]int{0, 2, 6},
+	)
 	headAcc6Rescaled := ev.Rescale(headAcc6)
 
 	return []*runtime.Ciphertext{headAcc6Rescaled}, ev.Err()

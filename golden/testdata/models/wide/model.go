@@ -127,8 +127,6 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Out0Block1Sum2 := ev.Add(dense1Out0Block1Sum, dense1Out0In1Prod2)
 	dense1Out0In1Prod3 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag3)
 	dense1Out0Block1Sum3 := ev.Add(dense1Out0Block1Sum2, dense1Out0In1Prod3)
-	dense1Out0Block1Rot := ev.Rotate(dense1Out0Block1Sum3, 2)
-	dense1Out0Acc1 := ev.Add(dense1Out0Block0Sum3, dense1Out0Block1Rot)
 	dense1Out0In0Prod4 := ev.MulPlain(signal0, pt.Dense1Out0In0Diag4)
 	dense1Out0In0Prod5 := ev.MulPlain(dense1In0Rot1, pt.Dense1Out0In0Diag5)
 	dense1Out0Block2Sum := ev.Add(dense1Out0In0Prod4, dense1Out0In0Prod5)
@@ -136,8 +134,6 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Out0Block2Sum2 := ev.Add(dense1Out0Block2Sum, dense1Out0In1Prod4)
 	dense1Out0In1Prod5 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag5)
 	dense1Out0Block2Sum3 := ev.Add(dense1Out0Block2Sum2, dense1Out0In1Prod5)
-	dense1Out0Block2Rot := ev.Rotate(dense1Out0Block2Sum3, 4)
-	dense1Out0Acc2 := ev.Add(dense1Out0Acc1, dense1Out0Block2Rot)
 	dense1Out0In0Prod6 := ev.MulPlain(signal0, pt.Dense1Out0In0Diag6)
 	dense1Out0In0Prod7 := ev.MulPlain(dense1In0Rot1, pt.Dense1Out0In0Diag7)
 	dense1Out0Block3Sum := ev.Add(dense1Out0In0Prod6, dense1Out0In0Prod7)
@@ -145,8 +141,10 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Out0Block3Sum2 := ev.Add(dense1Out0Block3Sum, dense1Out0In1Prod6)
 	dense1Out0In1Prod7 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag7)
 	dense1Out0Block3Sum3 := ev.Add(dense1Out0Block3Sum2, dense1Out0In1Prod7)
-	dense1Out0Block3Rot := ev.Rotate(dense1Out0Block3Sum3, 6)
-	dense1Out0Acc3 := ev.Add(dense1Out0Acc2, dense1Out0Block3Rot)
+	dense1Out0Acc3 := ev.RotateSum(
+		[]*runtime.Ciphertext{dense1Out0Block0Sum3, dense1Out0Block1Sum3, dense1Out0Block2Sum3, dense1Out0Block3Sum3},
+		[]int{0, 2, 4, 6},
+	)
 	dense1Out0Fold8Rot := ev.Rotate(dense1Out0Acc3, 8)
 	dense1Out0Folded8 := ev.Add(dense1Out0Acc3, dense1Out0Fold8Rot)
 	dense1Out0Fold16Rot := ev.Rotate(dense1Out0Folded8, 16)
@@ -182,23 +180,19 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense2Prod2 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag2)
 	dense2Prod3 := ev.MulPlain(dense2Rot1, pt.Dense2Diag3)
 	dense2Block2Sum := ev.Add(dense2Prod2, dense2Prod3)
-	dense2Block2Rot := ev.Rotate(dense2Block2Sum, 2)
-	dense2Acc2 := ev.Add(dense2Block0Sum, dense2Block2Rot)
 	dense2Prod4 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag4)
 	dense2Prod5 := ev.MulPlain(dense2Rot1, pt.Dense2Diag5)
 	dense2Block4Sum := ev.Add(dense2Prod4, dense2Prod5)
-	dense2Block4Rot := ev.Rotate(dense2Block4Sum, 4)
-	dense2Acc4 := ev.Add(dense2Acc2, dense2Block4Rot)
 	dense2Prod6 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag6)
 	dense2Prod7 := ev.MulPlain(dense2Rot1, pt.Dense2Diag7)
 	dense2Block6Sum := ev.Add(dense2Prod6, dense2Prod7)
-	dense2Block6Rot := ev.Rotate(dense2Block6Sum, 6)
-	dense2Acc6 := ev.Add(dense2Acc4, dense2Block6Rot)
 	dense2Prod4094 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag4094)
 	dense2Prod4095 := ev.MulPlain(dense2Rot1, pt.Dense2Diag4095)
 	dense2Block4094Sum := ev.Add(dense2Prod4094, dense2Prod4095)
-	dense2Block4094Rot := ev.Rotate(dense2Block4094Sum, 4094)
-	dense2Acc4094 := ev.Add(dense2Acc6, dense2Block4094Rot)
+	dense2Acc4094 := ev.RotateSum(
+		[]*runtime.Ciphertext{dense2Block0Sum, dense2Block2Sum, dense2Block4Sum, dense2Block6Sum, dense2Block4094Sum},
+		[]int{0, 2, 4, 6, 4094},
+	)
 	dense2Out := ev.AddPlain(dense2Acc4094, pt.Dense2Bias)
 	dense2OutRescaled := ev.Rescale(dense2Out)
 
