@@ -17,12 +17,14 @@ primitives measured in the same run. Per linear layer, with K the set of nonzero
 blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions; rotations as the
 cheapest baby-step giant-step split of K over every baby-step count n1, in either orientation (baby steps k mod
 n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and
-are priced as full rotations; or the roles of the two swapped); a blocked layer's sum of D/B shifted copies
-priced as the cheapest staging of hoisted sets (log2(D/B) single rotations at most); one rescale per level at
-which it multiplies. Per ciphertext product one product with its relinearization and one rescale; per polynomial
-of degree d, ceil(log2 d) such products (each at most doubles the degree) and one rescale per level it consumes.
-A hoisted set of r rotations costs rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of
-4). Everything else (encoding, level drops, scalar products, bias additions) is free.`
+are priced as full rotations, or as the terms of one rotate-sum where a sum has two or more and that is cheaper;
+or the roles of the two swapped); a blocked layer's sum of P/B shifted copies (P the period D, or the shorter
+period with which its input repeats, read off its folds) priced as the cheapest staging of hoisted sets
+(log2(P/B) single rotations at most); one rescale per level at which it multiplies. Per ciphertext product one
+product with its relinearization and one rescale; per polynomial of degree d, ceil(log2 d) such products (each
+at most doubles the degree) and one rescale per level it consumes. A hoisted set of r rotations costs
+rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of 4). Everything else (encoding, level
+drops, scalar products, bias additions) is free.`
 
 // Bound is the lower bound of one program's evaluation: see LowerBound.
 type Bound struct {
@@ -264,22 +266,26 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 			bl.MS += rescalesMS(prof, logN, prodLevels)
 		}
 		// Folds: rotations off the products' paths.
-		block, foldLevel := 0, -1
+		block, span, foldLevel := 0, 0, -1
 		for _, op := range p.Ops {
 			if op.Layer == li && (op.Kind == ir.OpRotate || op.Kind == ir.OpRotHoisted) && !onPath[op] {
 				for _, s := range op.Steps {
 					if block == 0 || s < block {
 						block = s
 					}
+					span = max(span, 2*s)
 				}
 				foldLevel = max(foldLevel, level(op.Args[0]))
 			}
 		}
 		if block > 0 {
-			if D%block != 0 {
-				return nil, fmt.Errorf("bound: layer %s: fold step %d does not divide the period %d", info.Name, block, D)
+			// The copies span D, or the shorter period of an input that
+			// repeats (the largest fold step is half of it).
+			span = min(nextPow2(span), D)
+			if D%block != 0 || span%block != 0 {
+				return nil, fmt.Errorf("bound: layer %s: fold step %d does not divide the period %d", info.Name, block, span)
 			}
-			ms, rots := foldMS(prof, logN, foldLevel, D/block)
+			ms, rots := foldMS(prof, logN, foldLevel, span/block)
 			bl.MS += ms
 			bl.Folds = rots
 		}

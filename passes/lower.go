@@ -36,6 +36,7 @@ func lower(s *State) error {
 		}
 	}
 	xs := inputValues(p, identifier(g.Input.Name))
+	repeat := 0 // x repeats with this period (0: not known to)
 	for i, l := range g.Layers {
 		info := &ir.LayerInfo{Name: l.Name, Pos: l.Pos}
 		p.Layers = append(p.Layers, info)
@@ -44,11 +45,15 @@ func lower(s *State) error {
 		if i == 0 {
 			b.pitch = pitch
 		}
+		if !b.naive {
+			b.repeat = repeat
+		}
 		if len(xs) > 1 || chunks(l.Out, p.Period) > 1 {
 			var err error
 			if xs, err = b.chunked(l, xs, info); err != nil {
 				return err
 			}
+			repeat = 0
 			continue
 		}
 		x := xs[0]
@@ -69,6 +74,9 @@ func lower(s *State) error {
 			return err
 		}
 		xs = []ir.ValueID{x}
+		if l.Kind != ir.Activation {
+			repeat = b.outRepeat // an activation keeps its input's period
+		}
 	}
 	p.Ops = append(p.Ops, &ir.Op{Kind: ir.OpOutput, Args: xs, Const: -1, Layer: len(p.Layers) - 1})
 	s.Prog = p
@@ -83,6 +91,10 @@ type builder struct {
 	method map[string]Method // the selection's matrix methods (method.go)
 	naive  bool              // Options.Naive: naiveMatVec (naive.go)
 	pitch  int               // the input is copied every pitch slots (see inputCopies); 0: one copy
+	// repeat is the period with which the layer's input is known to
+	// repeat (a blocked layer's output, through activations), 0 if none;
+	// outRepeat the output's, once lowered.
+	repeat, outRepeat int
 }
 
 func (b *builder) op(kind ir.OpKind, name string, args ...ir.ValueID) ir.ValueID {
@@ -163,12 +175,19 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 	// A layer with few outputs may instead fold its matrix into blocks of
 	// B = nextPow2(Out) rows: B diagonals, then log2(D/B) rotate-and-add
 	// steps sum the D/B partial results (see blockDiags).
-	block := D
+	//
+	// An input that repeats with period P (a blocked layer's output) needs
+	// only the P/B blocks of one period summed, in log2(P/B) steps: the
+	// product repeats with period P too (periodicDiags).
+	block, span := D, D
 	if B := nextPow2(l.Out); B < D {
-		h := blockDiags(diags, l.Out, B, D)
+		h, P := blockDiags(diags, l.Out, B, D), D
+		if r := b.repeat; l.Kind == ir.Dense && r > 0 && r < D && r%B == 0 && l.In <= r {
+			h, P = periodicDiags(l.Weights, l.In, B, r, D), r
+		}
 		hs := bestSplit(h, D)
-		if useBlocks(b.method, l.Name, sp.rotations, hs.rotations+log2(D/B)) {
-			diags, sp, block = h, hs, B
+		if useBlocks(b.method, l.Name, sp.rotations, hs.rotations+log2(P/B)) {
+			diags, sp, block, span = h, hs, B, P
 		}
 	}
 	n1 := sp.n1
@@ -250,13 +269,19 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 	if !haveAcc {
 		return 0, fmt.Errorf("%s: %s: every weight is zero; the layer is a constant and need not be encrypted", l.Pos, l.Name)
 	}
-	for step := block; step < D; step *= 2 {
+	for step := block; step < span; step *= 2 {
 		rot := b.rotate(acc, step, fmt.Sprintf("Fold%d", step))
 		acc = b.op(ir.OpAdd, fmt.Sprintf("Folded%d", step), acc, rot)
 		info.Rotations++
 	}
-	if block < D {
+	switch {
+	case span < D:
+		info.Kind += fmt.Sprintf(" (in blocks of %d, over the input's period %d)", block, span)
+	case block < D:
 		info.Kind += fmt.Sprintf(" (in blocks of %d)", block)
+	}
+	if block < D {
+		b.outRepeat = block
 	}
 	// With blocks the result repeats with period B over the whole period;
 	// so does the bias, so every copy is the output and stays in range.
@@ -296,6 +321,36 @@ func blockDiags(diags map[int][]float64, out, B, D int) map[int][]float64 {
 			h[k] = hk
 		}
 		copy(hk[m*B:m*B+out], d[:out])
+	}
+	return h
+}
+
+// periodicDiags are the B folded diagonals of an out×in dense matrix W for
+// an input that repeats with period P (B divides P, in ≤ P): entry (t, c)
+// lies on diagonal K = (c − t) mod P of one period, and h_k[r + mB] =
+// W[r][(r + mB + k) mod P] for mB + k < P, as blockDiags folds them; each
+// h_k then repeats with period P over the D slots, so that the product
+// does too and summing the P/B blocks of a period gives every row.
+func periodicDiags(w [][]float64, in, B, P, D int) map[int][]float64 {
+	h := map[int][]float64{}
+	for k := range B {
+		hk := make([]float64, D)
+		nonzero := false
+		for m := 0; m < P/B; m++ {
+			for r := 0; r < len(w) && r < B; r++ {
+				c := (r + m*B + k) % P
+				if c >= in || w[r][c] == 0 {
+					continue
+				}
+				for j := 0; j < D; j += P {
+					hk[j+m*B+r] = w[r][c]
+				}
+				nonzero = true
+			}
+		}
+		if nonzero {
+			h[k] = hk
+		}
 	}
 	return h
 }

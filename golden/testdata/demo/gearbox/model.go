@@ -41,13 +41,6 @@ type Plaintexts struct {
 	Dense2Diag7  *runtime.Plaintext  // level 3, scale q3
 	Dense2Bias   *runtime.Plaintext  // level 3, scale 2^40·q3
 	Dense3Diag0  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag1  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag2  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag3  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag4  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag5  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag6  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Diag7  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
 	Dense3Bias   *runtime.Plaintext  // level 1, scale 2^40·q1
 }
 
@@ -94,13 +87,6 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Dense2Diag7 = enc.Plaintext("dense2.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
 	pt.Dense2Bias = enc.Plaintext("dense2.bias", 3, runtime.Scale{Pow2: 40, Num: []int{3}}, 16)
 	pt.Dense3Diag0 = enc.Plaintext("dense3.diag0", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag1 = enc.Plaintext("dense3.diag1", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag2 = enc.Plaintext("dense3.diag2", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag3 = enc.Plaintext("dense3.diag3", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag4 = enc.Plaintext("dense3.diag4", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag5 = enc.Plaintext("dense3.diag5", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag6 = enc.Plaintext("dense3.diag6", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Diag7 = enc.Plaintext("dense3.diag7", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
 	pt.Dense3Bias = enc.Plaintext("dense3.bias", 1, runtime.Scale{Pow2: 40, Num: []int{1}}, 16)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
@@ -193,26 +179,15 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	act2SqRelin := ev.Relinearize(act2Sq)
 	act2SqRelinRescaled := ev.Rescale(act2SqRelin)
 
-	// gearbox.yaml:73:5 dense3: dense 8→1 · level 1→0 · 4 rotations · baby-step giant-step 2×8 · 8 plaintext multiplications · 1 rescale
-	act2SqRelinRescaledHoisted := ev.RotateHoisted(act2SqRelinRescaled, 1)
-	dense3Rot1 := act2SqRelinRescaledHoisted[0]
+	// gearbox.yaml:73:5 dense3: dense 8→1 (in blocks of 1, over the input's period 8) · level 1→0 · 3 rotations · baby-step giant-step 1×16 · 1 plaintext multiplication · 1 rescale
 	dense3Prod0 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag0)
-	dense3Prod1 := ev.MulPlain(dense3Rot1, pt.Dense3Diag1)
-	dense3Block0Sum := ev.Add(dense3Prod0, dense3Prod1)
-	dense3Prod2 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag2)
-	dense3Prod3 := ev.MulPlain(dense3Rot1, pt.Dense3Diag3)
-	dense3Block2Sum := ev.Add(dense3Prod2, dense3Prod3)
-	dense3Prod4 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag4)
-	dense3Prod5 := ev.MulPlain(dense3Rot1, pt.Dense3Diag5)
-	dense3Block4Sum := ev.Add(dense3Prod4, dense3Prod5)
-	dense3Prod6 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag6)
-	dense3Prod7 := ev.MulPlain(dense3Rot1, pt.Dense3Diag7)
-	dense3Block6Sum := ev.Add(dense3Prod6, dense3Prod7)
-	dense3Acc6 := ev.RotateSum(
-		[]*runtime.Ciphertext{dense3Block0Sum, dense3Block2Sum, dense3Block4Sum, dense3Block6Sum},
-		[]int{0, 2, 4, 6},
-	)
-	dense3Out := ev.AddPlain(dense3Acc6, pt.Dense3Bias)
+	dense3Fold1Rot := ev.Rotate(dense3Prod0, 1)
+	dense3Folded1 := ev.Add(dense3Prod0, dense3Fold1Rot)
+	dense3Fold2Rot := ev.Rotate(dense3Folded1, 2)
+	dense3Folded2 := ev.Add(dense3Folded1, dense3Fold2Rot)
+	dense3Fold4Rot := ev.Rotate(dense3Folded2, 4)
+	dense3Folded4 := ev.Add(dense3Folded2, dense3Fold4Rot)
+	dense3Out := ev.AddPlain(dense3Folded4, pt.Dense3Bias)
 	dense3OutRescaled := ev.Rescale(dense3Out)
 
 	return []*runtime.Ciphertext{dense3OutRescaled}, ev.Err()

@@ -18,7 +18,7 @@ var weightsBlob []byte
 
 // WeightsSHA256 is the SHA-256 of weights.bin, checked before any weight is read.
 // A change of weights shows in review as a change of this line.
-const WeightsSHA256 = "d352ac01f416afa7fe180084d22c039681c35245dbfab41627baf1f9fce10de6"
+const WeightsSHA256 = "ef35ba9e51dee091356b96eeb377e61b6a2b658c893b047f97f0fe86b62f8972"
 
 // LoadWeights checks the embedded blob against WeightsSHA256 and parses it.
 func LoadWeights() (*runtime.Weights, error) {

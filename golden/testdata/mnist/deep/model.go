@@ -414,7 +414,7 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// deep.yaml:64:5 relu2: relu (chebyshev, degree 7) · level 4→1 · 3 levels in the polynomial
 	relu2Out := ev.Poly(pool1Dense1OutRescaled, pt.Relu2Poly, runtime.Scale{Pow2: 31})
 
-	// deep.yaml:69:5 dense2: dense 64→10 (in blocks of 16) · level 1→0 · 15 rotations (3 hoisted) · baby-step giant-step 4×2048 · 16 plaintext multiplications · 1 rescale
+	// deep.yaml:69:5 dense2: dense 64→10 (in blocks of 16, over the input's period 64) · level 1→0 · 8 rotations (3 hoisted) · baby-step giant-step 4×2048 · 16 plaintext multiplications · 1 rescale
 	relu2OutHoisted := ev.RotateHoisted(relu2Out, 1, 2, 3)
 	dense2Rot1, dense2Rot2, dense2Rot3 := relu2OutHoisted[0], relu2OutHoisted[1], relu2OutHoisted[2]
 	dense2Prod0 := ev.MulPlain(relu2Out, pt.Dense2Diag0)
@@ -453,21 +453,7 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense2Folded16 := ev.Add(dense2Acc12, dense2Fold16Rot)
 	dense2Fold32Rot := ev.Rotate(dense2Folded16, 32)
 	dense2Folded32 := ev.Add(dense2Folded16, dense2Fold32Rot)
-	dense2Fold64Rot := ev.Rotate(dense2Folded32, 64)
-	dense2Folded64 := ev.Add(dense2Folded32, dense2Fold64Rot)
-	dense2Fold128Rot := ev.Rotate(dense2Folded64, 128)
-	dense2Folded128 := ev.Add(dense2Folded64, dense2Fold128Rot)
-	dense2Fold256Rot := ev.Rotate(dense2Folded128, 256)
-	dense2Folded256 := ev.Add(dense2Folded128, dense2Fold256Rot)
-	dense2Fold512Rot := ev.Rotate(dense2Folded256, 512)
-	dense2Folded512 := ev.Add(dense2Folded256, dense2Fold512Rot)
-	dense2Fold1024Rot := ev.Rotate(dense2Folded512, 1024)
-	dense2Folded1024 := ev.Add(dense2Folded512, dense2Fold1024Rot)
-	dense2Fold2048Rot := ev.Rotate(dense2Folded1024, 2048)
-	dense2Folded2048 := ev.Add(dense2Folded1024, dense2Fold2048Rot)
-	dense2Fold4096Rot := ev.Rotate(dense2Folded2048, 4096)
-	dense2Folded4096 := ev.Add(dense2Folded2048, dense2Fold4096Rot)
-	dense2Out := ev.AddPlain(dense2Folded4096, pt.Dense2Bias)
+	dense2Out := ev.AddPlain(dense2Folded32, pt.Dense2Bias)
 	dense2OutRescaled := ev.Rescale(dense2Out)
 
 	return []*runtime.Ciphertext{dense2OutRescaled}, ev.Err()

@@ -18,7 +18,7 @@ var weightsBlob []byte
 
 // WeightsSHA256 is the SHA-256 of weights.bin, checked before any weight is read.
 // A change of weights shows in review as a change of this line.
-const WeightsSHA256 = "37c78444702367485f7c167cf6fc666a6832e2cbc6692c58f016076b9a1955fa"
+const WeightsSHA256 = "0ddc43d902e055a709eb12cf8ee7e3966c7bb97e5b5c47eb6f2e6eea34ace701"
 
 // LoadWeights checks the embedded blob against WeightsSHA256 and parses it.
 func LoadWeights() (*runtime.Weights, error) {
