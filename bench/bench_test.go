@@ -251,7 +251,7 @@ func priceBound(p *ir.Program, before, after []runtime.OpTiming) (*passes.Bound,
 		ts[i] = runtime.OpTiming{LogN: a.LogN, Level: a.Level,
 			Add: min(a.Add, b.Add), MulPlain: min(a.MulPlain, b.MulPlain), MulRelin: min(a.MulRelin, b.MulRelin),
 			Rescale: min(a.Rescale, b.Rescale), Rotate: min(a.Rotate, b.Rotate), Hoisted: min(a.Hoisted, b.Hoisted), Encode: min(a.Encode, b.Encode),
-			RotSum: min(a.RotSum, b.RotSum)}
+			RotSum: min(a.RotSum, b.RotSum), Dot: min(a.Dot, b.Dot)}
 	}
 	prof, err := passes.FitProfile(fmt.Sprintf("this run (logN %d)", p.Params.LogN), ts)
 	if err != nil {

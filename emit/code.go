@@ -235,7 +235,8 @@ func (e *emitter) model() ([]byte, error) {
 		g.If(jen.Err().Op("!=").Nil()).Block(jen.Return(jen.Nil(), jen.Err()))
 		g.Id("enc").Op(":=").Add(e.rtQual("NewEncoder")).Call(jen.Id("params"), jen.Id("w"))
 		g.Id("pt").Op(":=").Op("&").Id("Plaintexts").Values()
-		for _, c := range p.Consts {
+		factors := factorConsts(p)
+		for i, c := range p.Consts {
 			if c.Kind == ir.Polynomial {
 				basis := "Monomial"
 				if c.Basis == ir.Chebyshev {
@@ -243,7 +244,12 @@ func (e *emitter) model() ([]byte, error) {
 				}
 				g.Id("pt").Dot(c.Ident).Op("=").Id("enc").Dot("Polynomial").Call(jen.Lit(c.Name), e.rtQual(basis))
 			} else {
-				g.Id("pt").Dot(c.Ident).Op("=").Id("enc").Dot("Plaintext").Call(jen.Lit(c.Name), jen.Lit(c.Level), scaleLit(e, c.Scale), jen.Lit(p.Period))
+				// A factor of products only is kept ready for them.
+				method := "Plaintext"
+				if factors[i] {
+					method = "Multiplier"
+				}
+				g.Id("pt").Dot(c.Ident).Op("=").Id("enc").Dot(method).Call(jen.Lit(c.Name), jen.Lit(c.Level), scaleLit(e, c.Scale), jen.Lit(p.Period))
 			}
 		}
 		g.If(jen.Err().Op(":=").Id("enc").Dot("Err").Call(), jen.Err().Op("!=").Nil()).Block(
@@ -337,6 +343,16 @@ func (e *emitter) stmt(g *jen.Group, op *ir.Op) {
 		call("RotateSum",
 			jen.Line().Index().Op("*").Add(e.rtQual("Ciphertext")).Values(terms...),
 			jen.Line().Index().Int().Values(steps...).Op(",").Line())
+	case ir.OpDot:
+		// Σ terms[i] ⊙ factors[i], accumulated in one ciphertext.
+		terms := make([]jen.Code, len(op.Args))
+		factors := make([]jen.Code, len(op.Consts))
+		for i := range op.Args {
+			terms[i], factors[i] = arg(i), jen.Id("pt").Dot(p.Consts[op.Consts[i]].Ident)
+		}
+		call("DotPlain",
+			jen.Line().Index().Op("*").Add(e.rtQual("Ciphertext")).Values(terms...),
+			jen.Line().Index().Op("*").Add(e.rtQual("Plaintext")).Values(factors...).Op(",").Line())
 	case ir.OpMulPlain:
 		call("MulPlain", arg(0), cst())
 	case ir.OpAddPlain:
@@ -375,4 +391,29 @@ func (e *emitter) main() ([]byte, error) {
 			jen.Qual("os", "Args").Index(jen.Lit(1), jen.Empty()), jen.Qual("os", "Stdout"), jen.Qual("os", "Stderr"))),
 	)
 	return render(f)
+}
+
+// factorConsts marks the vector constants that only multiply (in mulplain
+// and dot ops): Load encodes them with Encoder.Multiplier.
+func factorConsts(p *ir.Program) []bool {
+	factor := make([]bool, len(p.Consts))
+	other := make([]bool, len(p.Consts))
+	for _, op := range p.Ops {
+		switch op.Kind {
+		case ir.OpMulPlain:
+			factor[op.Const] = true
+		case ir.OpDot:
+			for _, c := range op.Consts {
+				factor[c] = true
+			}
+		default:
+			if op.Const >= 0 {
+				other[op.Const] = true
+			}
+		}
+	}
+	for i := range factor {
+		factor[i] = factor[i] && !other[i]
+	}
+	return factor
 }

@@ -107,6 +107,11 @@ func (p *Program) FormatOp(op *Op) string {
 	if op.Const >= 0 && op.Const < len(p.Consts) {
 		b.WriteString(" #" + p.Consts[op.Const].Name)
 	}
+	for _, ci := range op.Consts {
+		if ci >= 0 && ci < len(p.Consts) {
+			b.WriteString(" #" + p.Consts[ci].Name)
+		}
+	}
 	if len(op.Steps) > 0 {
 		fmt.Fprintf(&b, " %v", op.Steps)
 	}

@@ -100,6 +100,7 @@ const (
 	OpRotHoisted  OpKind = "rothoisted" // ct → one result per Steps, one decomposition
 	OpRotSum      OpKind = "rotsum"     // ct, ct, … → Σ_i rot_{Steps[i]}(Args[i]) (step 0: unrotated), one basis change back for all
 	OpMulPlain    OpKind = "mulplain"   // ct, Const → ct
+	OpDot         OpKind = "dot"        // ct, ct, … with Consts → Σ_i Args[i] ⊙ Consts[i], one accumulator
 	OpAddPlain    OpKind = "addplain"   // ct, Const → ct
 	OpAdd         OpKind = "add"        // ct, ct → ct
 	OpMul         OpKind = "mul"        // ct, ct → ct of degree 2
@@ -117,6 +118,7 @@ type Op struct {
 	Results []ValueID
 	Steps   []int // rotations
 	Const   int   // index into Program.Consts for mulplain, addplain, poly; else -1
+	Consts  []int // indices into Program.Consts for dot, one per operand
 	Drop    int   // levels dropped by OpDropLevel
 	Layer   int   // index into Program.Layers
 }

@@ -94,6 +94,15 @@ func (p *Program) Simulate(x []float64) ([]float64, error) {
 			for i, s := range op.Steps {
 				vals[op.Results[i]] = rotate(arg(0), s)
 			}
+		case OpDot:
+			v := make([]float64, p.Period)
+			for i, ci := range op.Consts {
+				a, c := arg(i), p.Consts[ci].Data
+				for j := range v {
+					v[j] += a[j] * c[j]
+				}
+			}
+			set(v)
 		case OpRotSum:
 			v := make([]float64, p.Period)
 			for i, s := range op.Steps {

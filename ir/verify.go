@@ -192,6 +192,24 @@ func VerifyProgram(p *Program, stage Stage) error {
 				fail(op, "constant %s has %d slots, want the period %d", c.Name, len(c.Data), p.Period)
 			}
 		}
+		if op.Kind == OpDot {
+			if len(op.Consts) != len(op.Args) {
+				fail(op, "%d constants for %d operands", len(op.Consts), len(op.Args))
+				continue
+			}
+			bad := false
+			for _, ci := range op.Consts {
+				if ci < 0 || ci >= len(p.Consts) {
+					fail(op, "constant %d out of range", ci)
+					bad = true
+				} else if c := p.Consts[ci]; c.Kind != Vector || len(c.Data) != p.Period {
+					fail(op, "constant %s is not a vector of the period %d", c.Name, p.Period)
+				}
+			}
+			if bad {
+				continue
+			}
+		}
 		// Degrees.
 		d := 1
 		needDegree1 := stage >= Relinearized
@@ -200,7 +218,7 @@ func VerifyProgram(p *Program, stage Stage) error {
 			if needDegree1 && degree[op.Args[0]] != 1 {
 				fail(op, "needs a degree-1 ciphertext, has degree %d", degree[op.Args[0]])
 			}
-		case OpRotSum:
+		case OpRotSum, OpDot:
 			for _, a := range op.Args {
 				if needDegree1 && degree[a] != 1 {
 					fail(op, "needs degree-1 ciphertexts, one has degree %d", degree[a])
@@ -342,6 +360,16 @@ func verifyLevels(p *Program, op *Op, fail func(*Op, string, ...any)) {
 		for i := range op.Args {
 			same(arg(i), res(0), "term and result")
 		}
+	case OpDot:
+		for i, ci := range op.Consts {
+			c := p.Consts[ci]
+			if c.Level != arg(i).Level {
+				fail(op, "plaintext %s at level %d meets a ciphertext at level %d", c.Name, c.Level, arg(i).Level)
+			}
+			if want := arg(i).Scale.Mul(c.Scale); res(0).Level != arg(i).Level || !res(0).Scale.Equal(want) {
+				fail(op, "term %d: product at level %d scale %s, result at %d %s", i, arg(i).Level, want, res(0).Level, res(0).Scale)
+			}
+		}
 	case OpAdd:
 		same(arg(0), arg(1), "operands")
 		same(arg(0), res(0), "operand and result")
@@ -402,7 +430,7 @@ func (p *Program) InferDegrees() {
 			d = 2
 		case OpAdd:
 			d = max(p.Values[op.Args[0]].Degree, p.Values[op.Args[1]].Degree)
-		case OpMulPlain, OpAddPlain, OpDropLevel, OpRescale, OpRotate, OpRotHoisted, OpRotSum:
+		case OpMulPlain, OpAddPlain, OpDropLevel, OpRescale, OpRotate, OpRotHoisted, OpRotSum, OpDot:
 			d = p.Values[op.Args[0]].Degree
 		}
 		for _, r := range op.Results {
@@ -451,7 +479,7 @@ func arity(p *Program, op *Op) (args, results int) {
 		return p.Output.Count(), 0
 	case OpRotHoisted:
 		return 1, -1
-	case OpRotSum:
+	case OpRotSum, OpDot:
 		return max(len(op.Args), 2), 1
 	case OpAdd, OpMul:
 		return 2, 1

@@ -73,15 +73,22 @@ func TestChunkedRotationsHoistedOncePerInputChunk(t *testing.T) {
 		require.Equal(t, 1, hoisted[x], "input chunk %s: one hoisted rotation", prog.Values[x].Name)
 	}
 	for _, op := range prog.Ops {
-		if op.Kind != ir.OpMulPlain {
+		args, consts := op.Args, op.Consts // a dot's products
+		switch op.Kind {
+		case ir.OpMulPlain:
+			consts = []int{op.Const}
+		case ir.OpDot:
+		default:
 			continue
 		}
-		if _, ok := def[op.Args[0]]; ok {
-			if readers[op.Args[0]] == nil {
-				readers[op.Args[0]] = map[string]bool{}
+		for i, a := range args {
+			if _, ok := def[a]; ok {
+				if readers[a] == nil {
+					readers[a] = map[string]bool{}
+				}
+				name := prog.Consts[consts[i]].Name // dense1.outJ.inI.diagK
+				readers[a][name[:len("dense1.out0")]] = true
 			}
-			name := prog.Consts[op.Const].Name // dense1.outJ.inI.diagK
-			readers[op.Args[0]][name[:len("dense1.out0")]] = true
 		}
 	}
 	shared := 0
@@ -91,11 +98,19 @@ func TestChunkedRotationsHoistedOncePerInputChunk(t *testing.T) {
 		}
 	}
 	require.Positive(t, shared, "some baby rotation serves several output chunks")
-	// Giant steps: at most one rotation per giant block per output chunk.
+	// Giant steps: at most one rotation per giant block per output chunk
+	// (each a term of a rotate-sum, or a rotation of its own).
 	rotates := map[string]int{}
 	for _, op := range prog.Ops {
-		if op.Kind == ir.OpRotate {
+		switch op.Kind {
+		case ir.OpRotate:
 			rotates[prog.Values[op.Results[0]].Name]++
+		case ir.OpRotSum:
+			for i, k := range op.Steps {
+				if k != 0 {
+					rotates[prog.Values[op.Args[i]].Name]++
+				}
+			}
 		}
 	}
 	for name, n := range rotates {

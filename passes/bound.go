@@ -14,7 +14,8 @@ import (
 // prints it under its table.
 const BoundDefinition = `lower bound: the work that the compiled program's layout cannot avoid, at the program's own levels, priced with
 primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its layout (of the
-blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions; rotations as the
+blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions, or |K| terms of a dot
+where that is cheaper; rotations as the
 cheapest baby-step giant-step split of K over every baby-step count n1, in either orientation (baby steps k mod
 n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and
 are priced as full rotations, or as the terms of one rotate-sum where a sum has two or more and that is cheaper;
@@ -134,6 +135,36 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 		var prods []product
 		var prodLevels []int
 		inputLevel := -1
+		// traceProduct follows a product of arg, first value res, to the
+		// layer's sum: the diagonal it multiplies is its input's rotation
+		// plus the rotations on the way.
+		traceProduct := func(arg, res ir.ValueID) product {
+			src, ok := origin(arg, li)
+			if !ok {
+				src = rotated{base: arg} // a product of an intermediate value: its own base
+			}
+			inputLevel = max(inputLevel, level(arg))
+			prodLevels = append(prodLevels, level(arg))
+			cur, post := res, 0
+			for {
+				us := uses[cur]
+				if len(us) != 1 || us[0].Layer != li {
+					break
+				}
+				u := us[0]
+				if u.Kind == ir.OpRotate {
+					post += u.Steps[0]
+					onPath[u] = true
+				} else if u.Kind == ir.OpRotSum {
+					post += u.Steps[slices.Index(u.Args, cur)]
+				} else if u.Kind != ir.OpAdd && u.Kind != ir.OpAddPlain && u.Kind != ir.OpRescale &&
+					u.Kind != ir.OpRelinearize && u.Kind != ir.OpDropLevel {
+					break
+				}
+				cur = u.Results[0]
+			}
+			return product{src.base, (src.off + post) % D, cur}
+		}
 		for _, op := range p.Ops {
 			if op.Layer != li {
 				continue
@@ -153,32 +184,11 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 				if r, ok := pre[op.Args[0]]; ok {
 					pre[op.Results[0]] = r
 				}
-			case ir.OpMulPlain:
-				src, ok := origin(op.Args[0], li)
-				if !ok {
-					src = rotated{base: op.Args[0]} // a product of an intermediate value: its own base
+			case ir.OpMulPlain, ir.OpDot:
+				// Each product (a dot's terms) multiplies one diagonal.
+				for _, arg := range op.Args {
+					prods = append(prods, traceProduct(arg, op.Results[0]))
 				}
-				inputLevel = max(inputLevel, level(op.Args[0]))
-				prodLevels = append(prodLevels, level(op.Args[0]))
-				cur, post := op.Results[0], 0
-				for {
-					us := uses[cur]
-					if len(us) != 1 || us[0].Layer != li {
-						break
-					}
-					u := us[0]
-					if u.Kind == ir.OpRotate {
-						post += u.Steps[0]
-						onPath[u] = true
-					} else if u.Kind == ir.OpRotSum {
-						post += u.Steps[slices.Index(u.Args, cur)]
-					} else if u.Kind != ir.OpAdd && u.Kind != ir.OpAddPlain && u.Kind != ir.OpRescale &&
-						u.Kind != ir.OpRelinearize && u.Kind != ir.OpDropLevel {
-						break
-					}
-					cur = u.Results[0]
-				}
-				prods = append(prods, product{src.base, (src.off + post) % D, cur})
 			}
 		}
 		// Diagonals, per sum and input.
@@ -200,7 +210,8 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 		}
 		if bl.Diagonals > 0 {
 			l := inputLevel
-			bl.MS += float64(bl.Diagonals)*cost(CostMulPlain, l) + float64(bl.Diagonals-1)*cost(CostAdd, l)
+			n := float64(bl.Diagonals)
+			bl.MS += math.Min(n*cost(CostMulPlain, l)+(n-1)*cost(CostAdd, l), n*dotTerm(prof, logN, max(l, 0))/1e6)
 			bases := map[ir.ValueID][]int{} // diagonals by input, for the baby steps
 			sums := map[ir.ValueID][]int{}  // diagonals by sum, for the giant steps
 			var baseOrder, sumOrder []ir.ValueID

@@ -160,6 +160,8 @@ func programMS(p *ir.Program, prof *Profile) float64 {
 			ms += hoistedMS(prof, logN, l, len(op.Steps))
 		case ir.OpRotSum:
 			ms += rotSumCost(prof, logN, l, op.Steps) / 1e6
+		case ir.OpDot:
+			ms += float64(len(op.Args)) * dotTerm(prof, logN, l) / 1e6
 		case ir.OpPoly:
 			ms += polyCost(prof, logN, l, len(p.Consts[op.Const].Data)-1) / 1e6
 		}

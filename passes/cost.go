@@ -26,13 +26,17 @@ const (
 	// Profiles written before it was measured lack it; a rotate-sum is
 	// then priced as its rotations.
 	CostRotSum = "rotsum"
+	// CostDot is a dot of HoistedSteps plaintext products accumulated in
+	// one ciphertext; without it a dot is priced as its products and
+	// additions.
+	CostDot = "dot"
 )
 
 var costOps = []string{CostAdd, CostMulPlain, CostMulRelin, CostRescale, CostRotate, CostHoisted, CostEncode}
 
 // fitOps are the primitives calibrate measures: the required ones and
 // those a profile may lack.
-var fitOps = append(slices.Clone(costOps), CostRotSum)
+var fitOps = append(slices.Clone(costOps), CostRotSum, CostDot)
 
 // Profile is a cost model: for each primitive and ring degree, its median
 // time in nanoseconds at a few measured levels. Between measured levels the
@@ -134,6 +138,7 @@ func FitProfile(machine string, ts []runtime.OpTiming) (*Profile, error) {
 		CostHoisted:  func(t runtime.OpTiming) float64 { return t.Hoisted },
 		CostEncode:   func(t runtime.OpTiming) float64 { return t.Encode },
 		CostRotSum:   func(t runtime.OpTiming) float64 { return t.RotSum },
+		CostDot:      func(t runtime.OpTiming) float64 { return t.Dot },
 	}
 	p := &Profile{Machine: machine, Ops: map[string]map[int][]Point{}}
 	count := map[int]int{}
@@ -194,6 +199,8 @@ func EstimateProgram(p *ir.Program, prof *Profile) Estimate {
 			ns = prof.Cost(CostHoisted, logN, level) * float64(len(op.Steps)) / runtime.HoistedSteps
 		case ir.OpRotSum:
 			ns = rotSumCost(prof, logN, level, op.Steps)
+		case ir.OpDot:
+			ns = float64(len(op.Args)) * dotTerm(prof, logN, level)
 		case ir.OpPoly:
 			ns = polyCost(prof, logN, level, len(p.Consts[op.Const].Data)-1)
 		}
@@ -238,4 +245,15 @@ func rotSumTerm(prof *Profile, logN, level int) float64 {
 		return prof.Cost(CostRotSum, logN, level) / runtime.HoistedSteps
 	}
 	return prof.Cost(CostRotate, logN, level)
+}
+
+// dotTerm is the cost in ns of one product of a dot: the measured dot per
+// product, or a plaintext product and an addition where the profile has
+// no dot (which prices a dot of n as its n products and n−1 additions,
+// within one addition).
+func dotTerm(prof *Profile, logN, level int) float64 {
+	if len(prof.Ops[CostDot]) > 0 {
+		return prof.Cost(CostDot, logN, level) / runtime.HoistedSteps
+	}
+	return prof.Cost(CostMulPlain, logN, level) + prof.Cost(CostAdd, logN, level)
 }

@@ -48,6 +48,8 @@ var Pipeline = []Pass{
 		Why: "under a key budget, keep fewer rotation keys; nest sums of rotations and compose the other rotations as chains of them"},
 	{Name: "sum-rotations", Run: sumRotations, Stage: ir.Leveled,
 		Why: "a sum of rotations becomes one rotate-sum: the key switches are added in the extended basis and brought down once"},
+	{Name: "fuse-products", Run: fuseProducts, Stage: ir.Leveled,
+		Why: "a sum of plaintext products becomes one dot: the products accumulate in one ciphertext"},
 	{Name: "keys", Run: collectKeys, Required: true, Stage: ir.Keyed,
 		Why: "the Galois key set is exactly the rotations used"},
 	{Name: "names", Run: nameValues, Required: true, Stage: ir.Keyed,
@@ -74,6 +76,8 @@ var Order = []struct{ Before, After, Why string }{
 	{"key-budget", "sum-rotations", "the budget rewrites single rotations; they merge only after it"},
 	{"levels", "sum-rotations", "the terms of a sum meet at one level and scale once drops are placed"},
 	{"sum-rotations", "keys", "keys are collected from the rotate-sums too"},
+	{"levels", "fuse-products", "every product of a dot is encoded at its term's level and scale"},
+	{"key-budget", "fuse-products", "the budget nests sums of rotations through their additions"},
 }
 
 // Options are the per-run settings of one compilation.

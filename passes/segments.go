@@ -195,6 +195,7 @@ func (p *segProgram) price(prof *Profile, logN, top int) float64 {
 	// makes of them in the compiled program.
 	merged := snapshot(prog)
 	mergeRotationSums(merged)
+	fuseDots(merged)
 	c := EstimateProgram(merged, prof).TotalMS
 	p.cost[key] = c
 	return c

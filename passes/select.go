@@ -90,11 +90,18 @@ type Choice struct {
 // compiled too) are recorded in the report with their estimated costs; a
 // runner-up that beats the choice replaces it, and the runner-ups of the
 // new choice are found in turn.
+//
+// Under a key budget the variants are chosen, and the decisions priced,
+// with the exact key set (the search does not model the rotations a budget
+// composes); the choice is then compiled under the budget, so that the
+// budget's exact point is the program the same spec gets without one.
 func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Program, *State, []Candidate, error) {
 	prog, st, err := Compile(g, opts)
 	if err != nil {
 		return prog, st, nil, err
 	}
+	budget := opts.MaxKeyBytes
+	opts.MaxKeyBytes = 0
 	pre, err := graphBefore(g, opts, "merge-linear")
 	if err != nil {
 		return nil, st, nil, err
@@ -110,13 +117,11 @@ func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Progra
 	}
 	best := done[0]
 	// The runner-ups are compiled and priced exactly; where one beats the
-	// choice (the search's estimate of key bytes is an upper bound, and
-	// variants may move the noise gain), it becomes the choice. Under a key
-	// budget it is skipped: compiled costs then include the rotations the
-	// budget composes, which the search does not model, and the budget
-	// applies to the variants the search chose.
+	// choice (the search's estimate of key bytes is an upper bound, the
+	// search prices a layer whose input repeats with the full folds, and
+	// variants may move the noise gain), it becomes the choice.
 	chs, alts := se.choices(g, opts, best)
-	for round := 0; round < 8 && opts.MaxKeyBytes == 0; round++ {
+	for round := 0; round < 8; round++ {
 		next := best
 		// The search's key bytes are an upper bound (keys summed per
 		// segment): under that objective, also try the choice with one
@@ -140,6 +145,15 @@ func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Progra
 		if d.c.Variant != best.c.Variant {
 			cands = append(cands, d.c)
 		}
+	}
+	if budget > 0 {
+		opts.MaxKeyBytes = budget
+		c, p, s := se.compile(g, opts, best.sol)
+		if c.Err != nil {
+			return nil, s, nil, c.Err
+		}
+		best.c, best.prog, best.st = c, p, s
+		cands[0] = c
 	}
 	best.st.Report.Choices = chs
 	return best.prog, best.st, cands, nil

@@ -21,6 +21,7 @@ type OpTiming struct {
 	Rotate      float64 // one rotation: a full key switch
 	Hoisted     float64 // RotateHoisted with HoistedSteps steps, all together
 	RotSum      float64 // RotateSum of HoistedSteps rotated terms, all together
+	Dot         float64 // DotPlain of HoistedSteps products (Multiplier plaintexts), all together
 	Encode      float64 // encoding one plaintext vector at this level
 }
 
@@ -86,6 +87,9 @@ func MeasureOps(logN int, logQ, logP []int, levels []int, reps int) (out []OpTim
 		t.Hoisted = median(reps, func() { ev.RotateHoisted(ct, steps...) })
 		terms := []*Ciphertext{ct, ct, ct, ct}
 		t.RotSum = median(reps, func() { ev.RotateSum(terms, steps) })
+		mul := enc.Multiplier("v", level, scale, p.Slots())
+		factors := []*Plaintext{mul, mul, mul, mul}
+		t.Dot = median(reps, func() { ev.DotPlain(terms, factors) })
 		t.Encode = median(reps, func() { enc.Plaintext("v", level, scale, p.Slots()) })
 		if err := errors.Join(ev.Err(), enc.Err()); err != nil {
 			return nil, err

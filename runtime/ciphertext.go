@@ -69,6 +69,9 @@ type Plaintext struct {
 	pt    *rlwe.Plaintext
 	fp    [sha256.Size]byte
 	scale Scale
+	// mform: the value is kept in Montgomery form, ready for products
+	// (Encoder.Multiplier); such a plaintext cannot be added.
+	mform bool
 }
 
 // Level returns the plaintext's level, or -1 for a nil plaintext.

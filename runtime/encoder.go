@@ -126,6 +126,25 @@ func (e *Encoder) Plaintext(name string, level int, scale Scale, period int) *Pl
 	return pt
 }
 
+// Multiplier encodes the named vector as Plaintext does, for use only as a
+// factor of MulPlain and DotPlain: its value is kept in Montgomery form,
+// so that products need not convert it on every evaluation.
+func (e *Encoder) Multiplier(name string, level int, scale Scale, period int) *Plaintext {
+	pt := e.Plaintext(name, level, scale, period)
+	if pt == nil {
+		return nil
+	}
+	func() {
+		defer recoverTo(&e.err, "encoder")
+		e.p.hp.RingQ().AtLevel(level).MForm(pt.pt.Value, pt.pt.Value)
+		pt.mform = true
+	}()
+	if e.err != nil {
+		return nil
+	}
+	return pt
+}
+
 func (e *Encoder) plaintext(name string, level int, scale Scale, period int) (pt *Plaintext, err error) {
 	defer recoverTo(&err, "")
 	v, err := e.w.Vector(name)

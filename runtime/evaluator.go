@@ -439,8 +439,24 @@ func (e *Evaluator) MulPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext {
 		if err := sameLevel(ct.Level(), pt.Level(), "plaintext"); err != nil {
 			return nil, err
 		}
-		return l.ev.MulNew(ct.ct, pt.pt)
+		if !pt.mform {
+			return l.ev.MulNew(ct.ct, pt.pt)
+		}
+		out := hefloat.NewCiphertext(e.p.hp, 1, ct.Level())
+		ringQ := e.p.hp.RingQ().AtLevel(ct.Level())
+		for j := range out.Value {
+			ringQ.MulCoeffsMontgomery(ct.ct.Value[j], pt.pt.Value, out.Value[j])
+		}
+		productMetaData(out, ct.ct, pt.pt)
+		return out, nil
 	})
+}
+
+// productMetaData gives out, a product of ct and pt, ct's metadata with the
+// product of the scales, as lattigo's own product does.
+func productMetaData(out, ct *rlwe.Ciphertext, pt *rlwe.Plaintext) {
+	*out.MetaData = *ct.MetaData
+	out.Scale = ct.Scale.Mul(pt.Scale)
 }
 
 // AddPlain adds pt to ct slot-wise. Levels and scales must match exactly.
@@ -454,6 +470,9 @@ func (e *Evaluator) AddPlain(ct *Ciphertext, pt *Plaintext) *Ciphertext {
 		}
 		if err := sameLevel(ct.Level(), pt.Level(), "plaintext"); err != nil {
 			return nil, err
+		}
+		if pt.mform {
+			return nil, errors.New("the plaintext is encoded for products (Encoder.Multiplier), not for addition")
 		}
 		if !sameScale(ct.ct.Scale, pt.pt.Scale) {
 			return nil, fmt.Errorf("scales differ: ciphertext %s, plaintext %s (%v)", fmtScale(ct.ct.Scale), fmtScale(pt.pt.Scale), pt.scale)

@@ -59,34 +59,34 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.Dense1Diag0 = enc.Plaintext("dense1.diag0", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag1 = enc.Plaintext("dense1.diag1", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag2 = enc.Plaintext("dense1.diag2", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag3 = enc.Plaintext("dense1.diag3", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag4 = enc.Plaintext("dense1.diag4", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag5 = enc.Plaintext("dense1.diag5", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag6 = enc.Plaintext("dense1.diag6", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag7 = enc.Plaintext("dense1.diag7", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag8 = enc.Plaintext("dense1.diag8", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag9 = enc.Plaintext("dense1.diag9", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag10 = enc.Plaintext("dense1.diag10", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag11 = enc.Plaintext("dense1.diag11", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag12 = enc.Plaintext("dense1.diag12", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag13 = enc.Plaintext("dense1.diag13", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag14 = enc.Plaintext("dense1.diag14", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
-	pt.Dense1Diag15 = enc.Plaintext("dense1.diag15", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag0 = enc.Multiplier("dense1.diag0", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag1 = enc.Multiplier("dense1.diag1", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag2 = enc.Multiplier("dense1.diag2", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag3 = enc.Multiplier("dense1.diag3", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag4 = enc.Multiplier("dense1.diag4", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag5 = enc.Multiplier("dense1.diag5", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag6 = enc.Multiplier("dense1.diag6", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag7 = enc.Multiplier("dense1.diag7", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag8 = enc.Multiplier("dense1.diag8", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag9 = enc.Multiplier("dense1.diag9", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag10 = enc.Multiplier("dense1.diag10", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag11 = enc.Multiplier("dense1.diag11", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag12 = enc.Multiplier("dense1.diag12", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag13 = enc.Multiplier("dense1.diag13", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag14 = enc.Multiplier("dense1.diag14", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
+	pt.Dense1Diag15 = enc.Multiplier("dense1.diag15", 8, runtime.Scale{Pow2: 0, Num: []int{8}}, 16)
 	pt.Dense1Bias = enc.Plaintext("dense1.bias", 8, runtime.Scale{Pow2: 40, Num: []int{8}}, 16)
 	pt.Act1Poly = enc.Polynomial("act1.poly", runtime.Chebyshev)
-	pt.Dense2Diag0 = enc.Plaintext("dense2.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag1 = enc.Plaintext("dense2.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag2 = enc.Plaintext("dense2.diag2", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag3 = enc.Plaintext("dense2.diag3", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag4 = enc.Plaintext("dense2.diag4", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag5 = enc.Plaintext("dense2.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag6 = enc.Plaintext("dense2.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Diag7 = enc.Plaintext("dense2.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag2 = enc.Multiplier("dense2.diag2", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag3 = enc.Multiplier("dense2.diag3", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag4 = enc.Multiplier("dense2.diag4", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag5 = enc.Multiplier("dense2.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag6 = enc.Multiplier("dense2.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
+	pt.Dense2Diag7 = enc.Multiplier("dense2.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
 	pt.Dense2Bias = enc.Plaintext("dense2.bias", 3, runtime.Scale{Pow2: 40, Num: []int{3}}, 16)
-	pt.Dense3Diag0 = enc.Plaintext("dense3.diag0", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
+	pt.Dense3Diag0 = enc.Multiplier("dense3.diag0", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
 	pt.Dense3Bias = enc.Plaintext("dense3.bias", 1, runtime.Scale{Pow2: 40, Num: []int{1}}, 16)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
@@ -112,34 +112,22 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// gearbox.yaml:47:5 dense1: dense 10→16 · level 8→7 · 6 rotations (3 hoisted) · baby-step giant-step 4×4 · 16 plaintext multiplications · 1 rescale
 	featuresHoisted := ev.RotateHoisted(features, 1, 2, 3)
 	dense1Rot1, dense1Rot2, dense1Rot3 := featuresHoisted[0], featuresHoisted[1], featuresHoisted[2]
-	dense1Prod0 := ev.MulPlain(features, pt.Dense1Diag0)
-	dense1Prod1 := ev.MulPlain(dense1Rot1, pt.Dense1Diag1)
-	dense1Block0Sum := ev.Add(dense1Prod0, dense1Prod1)
-	dense1Prod2 := ev.MulPlain(dense1Rot2, pt.Dense1Diag2)
-	dense1Block0Sum2 := ev.Add(dense1Block0Sum, dense1Prod2)
-	dense1Prod3 := ev.MulPlain(dense1Rot3, pt.Dense1Diag3)
-	dense1Block0Sum3 := ev.Add(dense1Block0Sum2, dense1Prod3)
-	dense1Prod4 := ev.MulPlain(features, pt.Dense1Diag4)
-	dense1Prod5 := ev.MulPlain(dense1Rot1, pt.Dense1Diag5)
-	dense1Block4Sum := ev.Add(dense1Prod4, dense1Prod5)
-	dense1Prod6 := ev.MulPlain(dense1Rot2, pt.Dense1Diag6)
-	dense1Block4Sum2 := ev.Add(dense1Block4Sum, dense1Prod6)
-	dense1Prod7 := ev.MulPlain(dense1Rot3, pt.Dense1Diag7)
-	dense1Block4Sum3 := ev.Add(dense1Block4Sum2, dense1Prod7)
-	dense1Prod8 := ev.MulPlain(features, pt.Dense1Diag8)
-	dense1Prod9 := ev.MulPlain(dense1Rot1, pt.Dense1Diag9)
-	dense1Block8Sum := ev.Add(dense1Prod8, dense1Prod9)
-	dense1Prod10 := ev.MulPlain(dense1Rot2, pt.Dense1Diag10)
-	dense1Block8Sum2 := ev.Add(dense1Block8Sum, dense1Prod10)
-	dense1Prod11 := ev.MulPlain(dense1Rot3, pt.Dense1Diag11)
-	dense1Block8Sum3 := ev.Add(dense1Block8Sum2, dense1Prod11)
-	dense1Prod12 := ev.MulPlain(features, pt.Dense1Diag12)
-	dense1Prod13 := ev.MulPlain(dense1Rot1, pt.Dense1Diag13)
-	dense1Block12Sum := ev.Add(dense1Prod12, dense1Prod13)
-	dense1Prod14 := ev.MulPlain(dense1Rot2, pt.Dense1Diag14)
-	dense1Block12Sum2 := ev.Add(dense1Block12Sum, dense1Prod14)
-	dense1Prod15 := ev.MulPlain(dense1Rot3, pt.Dense1Diag15)
-	dense1Block12Sum3 := ev.Add(dense1Block12Sum2, dense1Prod15)
+	dense1Block0Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{features, dense1Rot1, dense1Rot2, dense1Rot3},
+		[]*runtime.Plaintext{pt.Dense1Diag0, pt.Dense1Diag1, pt.Dense1Diag2, pt.Dense1Diag3},
+	)
+	dense1Block4Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{features, dense1Rot1, dense1Rot2, dense1Rot3},
+		[]*runtime.Plaintext{pt.Dense1Diag4, pt.Dense1Diag5, pt.Dense1Diag6, pt.Dense1Diag7},
+	)
+	dense1Block8Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{features, dense1Rot1, dense1Rot2, dense1Rot3},
+		[]*runtime.Plaintext{pt.Dense1Diag8, pt.Dense1Diag9, pt.Dense1Diag10, pt.Dense1Diag11},
+	)
+	dense1Block12Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{features, dense1Rot1, dense1Rot2, dense1Rot3},
+		[]*runtime.Plaintext{pt.Dense1Diag12, pt.Dense1Diag13, pt.Dense1Diag14, pt.Dense1Diag15},
+	)
 	dense1Acc12 := ev.RotateSum(
 		[]*runtime.Ciphertext{dense1Block0Sum3, dense1Block4Sum3, dense1Block8Sum3, dense1Block12Sum3},
 		[]int{0, 4, 8, 12},
@@ -153,18 +141,22 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// gearbox.yaml:63:5 dense2: dense 16→8 (in blocks of 8) · level 3→2 · 5 rotations · baby-step giant-step 2×8 · 8 plaintext multiplications · 1 rescale
 	act1OutHoisted := ev.RotateHoisted(act1Out, 1)
 	dense2Rot1 := act1OutHoisted[0]
-	dense2Prod0 := ev.MulPlain(act1Out, pt.Dense2Diag0)
-	dense2Prod1 := ev.MulPlain(dense2Rot1, pt.Dense2Diag1)
-	dense2Block0Sum := ev.Add(dense2Prod0, dense2Prod1)
-	dense2Prod2 := ev.MulPlain(act1Out, pt.Dense2Diag2)
-	dense2Prod3 := ev.MulPlain(dense2Rot1, pt.Dense2Diag3)
-	dense2Block2Sum := ev.Add(dense2Prod2, dense2Prod3)
-	dense2Prod4 := ev.MulPlain(act1Out, pt.Dense2Diag4)
-	dense2Prod5 := ev.MulPlain(dense2Rot1, pt.Dense2Diag5)
-	dense2Block4Sum := ev.Add(dense2Prod4, dense2Prod5)
-	dense2Prod6 := ev.MulPlain(act1Out, pt.Dense2Diag6)
-	dense2Prod7 := ev.MulPlain(dense2Rot1, pt.Dense2Diag7)
-	dense2Block6Sum := ev.Add(dense2Prod6, dense2Prod7)
+	dense2Block0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1Out, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag0, pt.Dense2Diag1},
+	)
+	dense2Block2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1Out, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag2, pt.Dense2Diag3},
+	)
+	dense2Block4Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1Out, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag4, pt.Dense2Diag5},
+	)
+	dense2Block6Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1Out, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag6, pt.Dense2Diag7},
+	)
 	dense2Acc6 := ev.RotateSum(
 		[]*runtime.Ciphertext{dense2Block0Sum, dense2Block2Sum, dense2Block4Sum, dense2Block6Sum},
 		[]int{0, 2, 4, 6},

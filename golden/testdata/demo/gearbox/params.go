@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{1125899908022273, 1099511922689, 1099512938497, 1099510054913, 1099514314753, 1099514478593, 1099508121601, 1099507695617, 1099515691009},
 	P:        []uint64{144115188075593729},
 	LogScale: 40,
-	ModelID:  "77cf902593b2f3372305232bd225ccd8",
+	ModelID:  "2e7bec705c9df84039042a4f05547480",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

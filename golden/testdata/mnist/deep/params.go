@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369, 2146041857, 2145976321, 2149810177, 2150072321},
 	P:        []uint64{281474976546817},
 	LogScale: 31,
-	ModelID:  "3fe5608d5d08c1c431c9b6929a91260c",
+	ModelID:  "fa3392eb3ba53c9fe9916067c32f7f27",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{18014398508400641, 8590163969, 8589475841, 8590458881, 8589279233, 8590688257},
 	P:        []uint64{2305843009211662337},
 	LogScale: 33,
-	ModelID:  "a899598621f1df603e71dbe8f4593fb8",
+	ModelID:  "163ed30c1b8365e7e0958b542fbeb3a5",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

@@ -54,29 +54,29 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.ConvDiag85 = enc.Plaintext("conv.diag85", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag86 = enc.Plaintext("conv.diag86", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag87 = enc.Plaintext("conv.diag87", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag91 = enc.Plaintext("conv.diag91", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag92 = enc.Plaintext("conv.diag92", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag93 = enc.Plaintext("conv.diag93", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag97 = enc.Plaintext("conv.diag97", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag98 = enc.Plaintext("conv.diag98", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag99 = enc.Plaintext("conv.diag99", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag121 = enc.Plaintext("conv.diag121", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag122 = enc.Plaintext("conv.diag122", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag123 = enc.Plaintext("conv.diag123", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag127 = enc.Plaintext("conv.diag127", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag0 = enc.Plaintext("conv.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag1 = enc.Plaintext("conv.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag5 = enc.Plaintext("conv.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag6 = enc.Plaintext("conv.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvDiag7 = enc.Plaintext("conv.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag85 = enc.Multiplier("conv.diag85", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag86 = enc.Multiplier("conv.diag86", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag87 = enc.Multiplier("conv.diag87", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag91 = enc.Multiplier("conv.diag91", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag92 = enc.Multiplier("conv.diag92", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag93 = enc.Multiplier("conv.diag93", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag97 = enc.Multiplier("conv.diag97", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag98 = enc.Multiplier("conv.diag98", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag99 = enc.Multiplier("conv.diag99", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag121 = enc.Multiplier("conv.diag121", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag122 = enc.Multiplier("conv.diag122", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag123 = enc.Multiplier("conv.diag123", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag127 = enc.Multiplier("conv.diag127", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag0 = enc.Multiplier("conv.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag1 = enc.Multiplier("conv.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag5 = enc.Multiplier("conv.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag6 = enc.Multiplier("conv.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
+	pt.ConvDiag7 = enc.Multiplier("conv.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvBias = enc.Plaintext("conv.bias", 3, runtime.Scale{Pow2: 32, Num: []int{3}}, 128)
-	pt.Pool1HeadDiag0 = enc.Plaintext("pool1_head.diag0", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadDiag1 = enc.Plaintext("pool1_head.diag1", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadDiag2 = enc.Plaintext("pool1_head.diag2", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadDiag3 = enc.Plaintext("pool1_head.diag3", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag0 = enc.Multiplier("pool1_head.diag0", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag1 = enc.Multiplier("pool1_head.diag1", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag2 = enc.Multiplier("pool1_head.diag2", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag3 = enc.Multiplier("pool1_head.diag3", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
 	pt.Pool1HeadBias = enc.Plaintext("pool1_head.bias", 1, runtime.Scale{Pow2: 32, Num: []int{1}}, 128)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
@@ -102,36 +102,30 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// conv_small.yaml:16:5 conv: linear 36→72 from conv (conv2d 3×3 stride 1×1) · norm (batchnorm, folded) · level 3→2 · 7 rotations (2 hoisted) · baby-step giant-step 3×43 · 18 plaintext multiplications · 1 rescale
 	imageHoisted := ev.RotateHoisted(image, 127, 1)
 	convRot127, convRot1 := imageHoisted[0], imageHoisted[1]
-	convProd85 := ev.MulPlain(convRot127, pt.ConvDiag85)
-	convProd86 := ev.MulPlain(image, pt.ConvDiag86)
-	convBlock86Sum := ev.Add(convProd85, convProd86)
-	convProd87 := ev.MulPlain(convRot1, pt.ConvDiag87)
-	convBlock86Sum2 := ev.Add(convBlock86Sum, convProd87)
-	convProd91 := ev.MulPlain(convRot127, pt.ConvDiag91)
-	convProd92 := ev.MulPlain(image, pt.ConvDiag92)
-	convBlock92Sum := ev.Add(convProd91, convProd92)
-	convProd93 := ev.MulPlain(convRot1, pt.ConvDiag93)
-	convBlock92Sum2 := ev.Add(convBlock92Sum, convProd93)
-	convProd97 := ev.MulPlain(convRot127, pt.ConvDiag97)
-	convProd98 := ev.MulPlain(image, pt.ConvDiag98)
-	convBlock98Sum := ev.Add(convProd97, convProd98)
-	convProd99 := ev.MulPlain(convRot1, pt.ConvDiag99)
-	convBlock98Sum2 := ev.Add(convBlock98Sum, convProd99)
-	convProd121 := ev.MulPlain(convRot127, pt.ConvDiag121)
-	convProd122 := ev.MulPlain(image, pt.ConvDiag122)
-	convBlock122Sum := ev.Add(convProd121, convProd122)
-	convProd123 := ev.MulPlain(convRot1, pt.ConvDiag123)
-	convBlock122Sum2 := ev.Add(convBlock122Sum, convProd123)
-	convProd127 := ev.MulPlain(convRot127, pt.ConvDiag127)
-	convProd0 := ev.MulPlain(image, pt.ConvDiag0)
-	convBlock0Sum := ev.Add(convProd127, convProd0)
-	convProd1 := ev.MulPlain(convRot1, pt.ConvDiag1)
-	convBlock0Sum2 := ev.Add(convBlock0Sum, convProd1)
-	convProd5 := ev.MulPlain(convRot127, pt.ConvDiag5)
-	convProd6 := ev.MulPlain(image, pt.ConvDiag6)
-	convBlock6Sum := ev.Add(convProd5, convProd6)
-	convProd7 := ev.MulPlain(convRot1, pt.ConvDiag7)
-	convBlock6Sum2 := ev.Add(convBlock6Sum, convProd7)
+	convBlock86Sum2 := ev.DotPlain(
+		[]*runtime.Ciphertext{convRot127, image, convRot1},
+		[]*runtime.Plaintext{pt.ConvDiag85, pt.ConvDiag86, pt.ConvDiag87},
+	)
+	convBlock92Sum2 := ev.DotPlain(
+		[]*runtime.Ciphertext{convRot127, image, convRot1},
+		[]*runtime.Plaintext{pt.ConvDiag91, pt.ConvDiag92, pt.ConvDiag93},
+	)
+	convBlock98Sum2 := ev.DotPlain(
+		[]*runtime.Ciphertext{convRot127, image, convRot1},
+		[]*runtime.Plaintext{pt.ConvDiag97, pt.ConvDiag98, pt.ConvDiag99},
+	)
+	convBlock122Sum2 := ev.DotPlain(
+		[]*runtime.Ciphertext{convRot127, image, convRot1},
+		[]*runtime.Plaintext{pt.ConvDiag121, pt.ConvDiag122, pt.ConvDiag123},
+	)
+	convBlock0Sum2 := ev.DotPlain(
+		[]*runtime.Ciphertext{convRot127, image, convRot1},
+		[]*runtime.Plaintext{pt.ConvDiag127, pt.ConvDiag0, pt.ConvDiag1},
+	)
+	convBlock6Sum2 := ev.DotPlain(
+		[]*runtime.Ciphertext{convRot127, image, convRot1},
+		[]*runtime.Plaintext{pt.ConvDiag5, pt.ConvDiag6, pt.ConvDiag7},
+	)
 	convAcc6 := ev.RotateSum(
 		[]*runtime.Ciphertext{convBlock86Sum2, convBlock92Sum2, convBlock98Sum2, convBlock122Sum2, convBlock0Sum2, convBlock6Sum2},
 		[]int{86, 92, 98, 122, 0, 6},
@@ -147,12 +141,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// conv_small.yaml:34:5 pool1_head: linear 72→3 from pool1 (avgpool 2×2 stride 2×2) · head (dense) (in blocks of 4) · level 1→0 · 7 rotations · baby-step giant-step 2×64 · 4 plaintext multiplications · 1 rescale
 	act1SqRelinRescaledHoisted := ev.RotateHoisted(act1SqRelinRescaled, 1)
 	pool1HeadRot1 := act1SqRelinRescaledHoisted[0]
-	pool1HeadProd0 := ev.MulPlain(act1SqRelinRescaled, pt.Pool1HeadDiag0)
-	pool1HeadProd1 := ev.MulPlain(pool1HeadRot1, pt.Pool1HeadDiag1)
-	pool1HeadBlock0Sum := ev.Add(pool1HeadProd0, pool1HeadProd1)
-	pool1HeadProd2 := ev.MulPlain(act1SqRelinRescaled, pt.Pool1HeadDiag2)
-	pool1HeadProd3 := ev.MulPlain(pool1HeadRot1, pt.Pool1HeadDiag3)
-	pool1HeadBlock2Sum := ev.Add(pool1HeadProd2, pool1HeadProd3)
+	pool1HeadBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, pool1HeadRot1},
+		[]*runtime.Plaintext{pt.Pool1HeadDiag0, pt.Pool1HeadDiag1},
+	)
+	pool1HeadBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, pool1HeadRot1},
+		[]*runtime.Plaintext{pt.Pool1HeadDiag2, pt.Pool1HeadDiag3},
+	)
 	pool1HeadBlock2Rot := ev.Rotate(pool1HeadBlock2Sum, 2)
 	pool1HeadAcc2 := ev.Add(pool1HeadBlock0Sum, pool1HeadBlock2Rot)
 	pool1HeadFold4Rot := ev.Rotate(pool1HeadAcc2, 4)

@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 4295049217, 4295294977, 4295344129},
 	P:        []uint64{281474976694273},
 	LogScale: 32,
-	ModelID:  "86f99be98729c0485b40c8720de4d239",
+	ModelID:  "20f935a41fabc2a9a09e251fe9b9ef05",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

@@ -39,15 +39,15 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.Dense1Diag0 = enc.Plaintext("dense1.diag0", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
-	pt.Dense1Diag1 = enc.Plaintext("dense1.diag1", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
-	pt.Dense1Diag2 = enc.Plaintext("dense1.diag2", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
-	pt.Dense1Diag3 = enc.Plaintext("dense1.diag3", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
+	pt.Dense1Diag0 = enc.Multiplier("dense1.diag0", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
+	pt.Dense1Diag1 = enc.Multiplier("dense1.diag1", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
+	pt.Dense1Diag2 = enc.Multiplier("dense1.diag2", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
+	pt.Dense1Diag3 = enc.Multiplier("dense1.diag3", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 4)
 	pt.Dense1Bias = enc.Plaintext("dense1.bias", 4, runtime.Scale{Pow2: 30, Num: []int{4}}, 4)
-	pt.Dense2Diag0 = enc.Plaintext("dense2.diag0", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
-	pt.Dense2Diag1 = enc.Plaintext("dense2.diag1", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
-	pt.Dense2Diag2 = enc.Plaintext("dense2.diag2", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
-	pt.Dense2Diag3 = enc.Plaintext("dense2.diag3", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
+	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
+	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
+	pt.Dense2Diag2 = enc.Multiplier("dense2.diag2", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
+	pt.Dense2Diag3 = enc.Multiplier("dense2.diag3", 2, runtime.Scale{Pow2: -30, Num: []int{2, 3}}, 4)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -72,12 +72,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// pinned.yaml:16:5 dense1: dense 4→4 · level 4→3 · 2 rotations · baby-step giant-step 2×2 · 4 plaintext multiplications · 1 rescale
 	inputHoisted := ev.RotateHoisted(input, 1)
 	dense1Rot1 := inputHoisted[0]
-	dense1Prod0 := ev.MulPlain(input, pt.Dense1Diag0)
-	dense1Prod1 := ev.MulPlain(dense1Rot1, pt.Dense1Diag1)
-	dense1Block0Sum := ev.Add(dense1Prod0, dense1Prod1)
-	dense1Prod2 := ev.MulPlain(input, pt.Dense1Diag2)
-	dense1Prod3 := ev.MulPlain(dense1Rot1, pt.Dense1Diag3)
-	dense1Block2Sum := ev.Add(dense1Prod2, dense1Prod3)
+	dense1Block0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{input, dense1Rot1},
+		[]*runtime.Plaintext{pt.Dense1Diag0, pt.Dense1Diag1},
+	)
+	dense1Block2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{input, dense1Rot1},
+		[]*runtime.Plaintext{pt.Dense1Diag2, pt.Dense1Diag3},
+	)
 	dense1Block2Rot := ev.Rotate(dense1Block2Sum, 2)
 	dense1Acc2 := ev.Add(dense1Block0Sum, dense1Block2Rot)
 	dense1Out := ev.AddPlain(dense1Acc2, pt.Dense1Bias)
@@ -91,12 +93,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// pinned.yaml:26:5 dense2: dense 4→2 · level 2→1 · 2 rotations · baby-step giant-step 2×2 · 4 plaintext multiplications · 1 rescale
 	act1SqRelinRescaledHoisted := ev.RotateHoisted(act1SqRelinRescaled, 1)
 	dense2Rot1 := act1SqRelinRescaledHoisted[0]
-	dense2Prod0 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag0)
-	dense2Prod1 := ev.MulPlain(dense2Rot1, pt.Dense2Diag1)
-	dense2Block0Sum := ev.Add(dense2Prod0, dense2Prod1)
-	dense2Prod2 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag2)
-	dense2Prod3 := ev.MulPlain(dense2Rot1, pt.Dense2Diag3)
-	dense2Block2Sum := ev.Add(dense2Prod2, dense2Prod3)
+	dense2Block0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag0, pt.Dense2Diag1},
+	)
+	dense2Block2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag2, pt.Dense2Diag3},
+	)
 	dense2Block2Rot := ev.Rotate(dense2Block2Sum, 2)
 	dense2Acc2 := ev.Add(dense2Block0Sum, dense2Block2Rot)
 	dense2Acc2Rescaled := ev.Rescale(dense2Acc2)

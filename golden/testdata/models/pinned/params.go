@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{1125899906826241, 1073692673, 1073643521, 1073872897, 1073971201},
 	P:        []uint64{35184372121601},
 	LogScale: 30,
-	ModelID:  "068295b0da9471412a72dd45db8568ec",
+	ModelID:  "3be358b259ea7b93d06f81ef0e694d89",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

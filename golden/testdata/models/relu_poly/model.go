@@ -49,25 +49,25 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.HiddenDiag0 = enc.Plaintext("hidden.diag0", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag1 = enc.Plaintext("hidden.diag1", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag2 = enc.Plaintext("hidden.diag2", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag3 = enc.Plaintext("hidden.diag3", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag4 = enc.Plaintext("hidden.diag4", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag5 = enc.Plaintext("hidden.diag5", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag6 = enc.Plaintext("hidden.diag6", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
-	pt.HiddenDiag7 = enc.Plaintext("hidden.diag7", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag0 = enc.Multiplier("hidden.diag0", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag1 = enc.Multiplier("hidden.diag1", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag2 = enc.Multiplier("hidden.diag2", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag3 = enc.Multiplier("hidden.diag3", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag4 = enc.Multiplier("hidden.diag4", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag5 = enc.Multiplier("hidden.diag5", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag6 = enc.Multiplier("hidden.diag6", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
+	pt.HiddenDiag7 = enc.Multiplier("hidden.diag7", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8)
 	pt.HiddenBias = enc.Plaintext("hidden.bias", 9, runtime.Scale{Pow2: 35, Num: []int{9}}, 8)
 	pt.RectifyPoly = enc.Polynomial("rectify.poly", runtime.Chebyshev)
-	pt.MixDiag0 = enc.Plaintext("mix.diag0", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
-	pt.MixDiag1 = enc.Plaintext("mix.diag1", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
-	pt.MixDiag2 = enc.Plaintext("mix.diag2", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
-	pt.MixDiag3 = enc.Plaintext("mix.diag3", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
+	pt.MixDiag0 = enc.Multiplier("mix.diag0", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
+	pt.MixDiag1 = enc.Multiplier("mix.diag1", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
+	pt.MixDiag2 = enc.Multiplier("mix.diag2", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
+	pt.MixDiag3 = enc.Multiplier("mix.diag3", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
 	pt.MixBias = enc.Plaintext("mix.bias", 4, runtime.Scale{Pow2: 35, Num: []int{4}}, 8)
 	pt.BendPoly = enc.Polynomial("bend.poly", runtime.Monomial)
-	pt.HeadDiag0 = enc.Plaintext("head.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
-	pt.HeadDiag1 = enc.Plaintext("head.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
-	pt.HeadDiag2 = enc.Plaintext("head.diag2", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag0 = enc.Multiplier("head.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag1 = enc.Multiplier("head.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag2 = enc.Multiplier("head.diag2", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -92,18 +92,22 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// relu_poly.yaml:13:5 hidden: dense 5→6 · level 9→8 · 4 rotations · baby-step giant-step 2×4 · 8 plaintext multiplications · 1 rescale
 	x2Hoisted := ev.RotateHoisted(x2, 1)
 	hiddenRot1 := x2Hoisted[0]
-	hiddenProd0 := ev.MulPlain(x2, pt.HiddenDiag0)
-	hiddenProd1 := ev.MulPlain(hiddenRot1, pt.HiddenDiag1)
-	hiddenBlock0Sum := ev.Add(hiddenProd0, hiddenProd1)
-	hiddenProd2 := ev.MulPlain(x2, pt.HiddenDiag2)
-	hiddenProd3 := ev.MulPlain(hiddenRot1, pt.HiddenDiag3)
-	hiddenBlock2Sum := ev.Add(hiddenProd2, hiddenProd3)
-	hiddenProd4 := ev.MulPlain(x2, pt.HiddenDiag4)
-	hiddenProd5 := ev.MulPlain(hiddenRot1, pt.HiddenDiag5)
-	hiddenBlock4Sum := ev.Add(hiddenProd4, hiddenProd5)
-	hiddenProd6 := ev.MulPlain(x2, pt.HiddenDiag6)
-	hiddenProd7 := ev.MulPlain(hiddenRot1, pt.HiddenDiag7)
-	hiddenBlock6Sum := ev.Add(hiddenProd6, hiddenProd7)
+	hiddenBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag0, pt.HiddenDiag1},
+	)
+	hiddenBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag2, pt.HiddenDiag3},
+	)
+	hiddenBlock4Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag4, pt.HiddenDiag5},
+	)
+	hiddenBlock6Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag6, pt.HiddenDiag7},
+	)
 	hiddenAcc6 := ev.RotateSum(
 		[]*runtime.Ciphertext{hiddenBlock0Sum, hiddenBlock2Sum, hiddenBlock4Sum, hiddenBlock6Sum},
 		[]int{0, 2, 4, 6},
@@ -117,12 +121,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// relu_poly.yaml:29:5 mix: dense 6→3 (in blocks of 4) · level 4→3 · 3 rotations · baby-step giant-step 2×4 · 4 plaintext multiplications · 1 rescale
 	rectifyOutHoisted := ev.RotateHoisted(rectifyOut, 1)
 	mixRot1 := rectifyOutHoisted[0]
-	mixProd0 := ev.MulPlain(rectifyOut, pt.MixDiag0)
-	mixProd1 := ev.MulPlain(mixRot1, pt.MixDiag1)
-	mixBlock0Sum := ev.Add(mixProd0, mixProd1)
-	mixProd2 := ev.MulPlain(rectifyOut, pt.MixDiag2)
-	mixProd3 := ev.MulPlain(mixRot1, pt.MixDiag3)
-	mixBlock2Sum := ev.Add(mixProd2, mixProd3)
+	mixBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{rectifyOut, mixRot1},
+		[]*runtime.Plaintext{pt.MixDiag0, pt.MixDiag1},
+	)
+	mixBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{rectifyOut, mixRot1},
+		[]*runtime.Plaintext{pt.MixDiag2, pt.MixDiag3},
+	)
 	mixBlock2Rot := ev.Rotate(mixBlock2Sum, 2)
 	mixAcc2 := ev.Add(mixBlock0Sum, mixBlock2Rot)
 	mixFold4Rot := ev.Rotate(mixAcc2, 4)

@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 34359771137, 34359410689, 34359214081, 34358788097, 34360754177, 34357805057, 34357444609, 34357411841, 34362163201},
 	P:        []uint64{281474976546817},
 	LogScale: 35,
-	ModelID:  "6a843d371c37f26b1964514a6c4e4b38",
+	ModelID:  "d66d0abafd256d6d3b615c4a07f5f280",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

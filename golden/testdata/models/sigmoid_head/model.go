@@ -46,19 +46,19 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.HiddenDiag0 = enc.Plaintext("hidden.diag0", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag1 = enc.Plaintext("hidden.diag1", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag2 = enc.Plaintext("hidden.diag2", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag3 = enc.Plaintext("hidden.diag3", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag4 = enc.Plaintext("hidden.diag4", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag5 = enc.Plaintext("hidden.diag5", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag6 = enc.Plaintext("hidden.diag6", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.HiddenDiag7 = enc.Plaintext("hidden.diag7", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag0 = enc.Multiplier("hidden.diag0", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag1 = enc.Multiplier("hidden.diag1", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag2 = enc.Multiplier("hidden.diag2", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag3 = enc.Multiplier("hidden.diag3", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag4 = enc.Multiplier("hidden.diag4", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag5 = enc.Multiplier("hidden.diag5", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag6 = enc.Multiplier("hidden.diag6", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.HiddenDiag7 = enc.Multiplier("hidden.diag7", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
 	pt.HiddenBias = enc.Plaintext("hidden.bias", 6, runtime.Scale{Pow2: 31, Num: []int{6}}, 8)
-	pt.HeadDiag0 = enc.Plaintext("head.diag0", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
-	pt.HeadDiag1 = enc.Plaintext("head.diag1", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
-	pt.HeadDiag2 = enc.Plaintext("head.diag2", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
-	pt.HeadDiag3 = enc.Plaintext("head.diag3", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
+	pt.HeadDiag0 = enc.Multiplier("head.diag0", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
+	pt.HeadDiag1 = enc.Multiplier("head.diag1", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
+	pt.HeadDiag2 = enc.Multiplier("head.diag2", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
+	pt.HeadDiag3 = enc.Multiplier("head.diag3", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
 	pt.HeadBias = enc.Plaintext("head.bias", 4, runtime.Scale{Pow2: 31, Num: []int{4}}, 8)
 	pt.SquashPoly = enc.Polynomial("squash.poly", runtime.Chebyshev)
 	pt.SquashUnpad = enc.Plaintext("squash.unpad", 0, runtime.Scale{Pow2: 31}, 8)
@@ -86,18 +86,22 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// sigmoid_head.yaml:22:5 hidden: dense 5→6 · level 6→5 · 4 rotations · baby-step giant-step 2×4 · 8 plaintext multiplications · 1 rescale
 	x2Hoisted := ev.RotateHoisted(x2, 1)
 	hiddenRot1 := x2Hoisted[0]
-	hiddenProd0 := ev.MulPlain(x2, pt.HiddenDiag0)
-	hiddenProd1 := ev.MulPlain(hiddenRot1, pt.HiddenDiag1)
-	hiddenBlock0Sum := ev.Add(hiddenProd0, hiddenProd1)
-	hiddenProd2 := ev.MulPlain(x2, pt.HiddenDiag2)
-	hiddenProd3 := ev.MulPlain(hiddenRot1, pt.HiddenDiag3)
-	hiddenBlock2Sum := ev.Add(hiddenProd2, hiddenProd3)
-	hiddenProd4 := ev.MulPlain(x2, pt.HiddenDiag4)
-	hiddenProd5 := ev.MulPlain(hiddenRot1, pt.HiddenDiag5)
-	hiddenBlock4Sum := ev.Add(hiddenProd4, hiddenProd5)
-	hiddenProd6 := ev.MulPlain(x2, pt.HiddenDiag6)
-	hiddenProd7 := ev.MulPlain(hiddenRot1, pt.HiddenDiag7)
-	hiddenBlock6Sum := ev.Add(hiddenProd6, hiddenProd7)
+	hiddenBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag0, pt.HiddenDiag1},
+	)
+	hiddenBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag2, pt.HiddenDiag3},
+	)
+	hiddenBlock4Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag4, pt.HiddenDiag5},
+	)
+	hiddenBlock6Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{x2, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag6, pt.HiddenDiag7},
+	)
 	hiddenAcc6 := ev.RotateSum(
 		[]*runtime.Ciphertext{hiddenBlock0Sum, hiddenBlock2Sum, hiddenBlock4Sum, hiddenBlock6Sum},
 		[]int{0, 2, 4, 6},
@@ -113,12 +117,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// sigmoid_head.yaml:35:5 head: dense 6→3 (in blocks of 4) · level 4→3 · 3 rotations · baby-step giant-step 2×4 · 4 plaintext multiplications · 1 rescale
 	act1SqRelinRescaledHoisted := ev.RotateHoisted(act1SqRelinRescaled, 1)
 	headRot1 := act1SqRelinRescaledHoisted[0]
-	headProd0 := ev.MulPlain(act1SqRelinRescaled, pt.HeadDiag0)
-	headProd1 := ev.MulPlain(headRot1, pt.HeadDiag1)
-	headBlock0Sum := ev.Add(headProd0, headProd1)
-	headProd2 := ev.MulPlain(act1SqRelinRescaled, pt.HeadDiag2)
-	headProd3 := ev.MulPlain(headRot1, pt.HeadDiag3)
-	headBlock2Sum := ev.Add(headProd2, headProd3)
+	headBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, headRot1},
+		[]*runtime.Plaintext{pt.HeadDiag0, pt.HeadDiag1},
+	)
+	headBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, headRot1},
+		[]*runtime.Plaintext{pt.HeadDiag2, pt.HeadDiag3},
+	)
 	headBlock2Rot := ev.Rotate(headBlock2Sum, 2)
 	headAcc2 := ev.Add(headBlock0Sum, headBlock2Rot)
 	headFold4Rot := ev.Rotate(headAcc2, 4)

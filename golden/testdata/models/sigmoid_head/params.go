@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{17179967489, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369, 2146041857},
 	P:        []uint64{2199023288321},
 	LogScale: 31,
-	ModelID:  "708a06c6f1ab45119b80b46ea3121cd1",
+	ModelID:  "fec4f6f0c95b3a31da951ea765fb2a3a",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{34359771137, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369},
 	P:        []uint64{4398046150657},
 	LogScale: 31,
-	ModelID:  "21577f1260fca8d4c1c89552df477037",
+	ModelID:  "a4c5cfe2d48554466fe8eb6bb51bc44a",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

@@ -48,24 +48,24 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.HiddenDiag0 = enc.Plaintext("hidden.diag0", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag1 = enc.Plaintext("hidden.diag1", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag2 = enc.Plaintext("hidden.diag2", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag3 = enc.Plaintext("hidden.diag3", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag4 = enc.Plaintext("hidden.diag4", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag5 = enc.Plaintext("hidden.diag5", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag6 = enc.Plaintext("hidden.diag6", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
-	pt.HiddenDiag7 = enc.Plaintext("hidden.diag7", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag0 = enc.Multiplier("hidden.diag0", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag1 = enc.Multiplier("hidden.diag1", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag2 = enc.Multiplier("hidden.diag2", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag3 = enc.Multiplier("hidden.diag3", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag4 = enc.Multiplier("hidden.diag4", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag5 = enc.Multiplier("hidden.diag5", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag6 = enc.Multiplier("hidden.diag6", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
+	pt.HiddenDiag7 = enc.Multiplier("hidden.diag7", 11, runtime.Scale{Pow2: 0, Num: []int{11}}, 8)
 	pt.HiddenBias = enc.Plaintext("hidden.bias", 11, runtime.Scale{Pow2: 30, Num: []int{11}}, 8)
 	pt.SquashPoly = enc.Polynomial("squash.poly", runtime.Chebyshev)
-	pt.MixNarrowDiag0 = enc.Plaintext("mix_narrow.diag0", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.MixNarrowDiag1 = enc.Plaintext("mix_narrow.diag1", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.MixNarrowDiag2 = enc.Plaintext("mix_narrow.diag2", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
-	pt.MixNarrowDiag3 = enc.Plaintext("mix_narrow.diag3", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.MixNarrowDiag0 = enc.Multiplier("mix_narrow.diag0", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.MixNarrowDiag1 = enc.Multiplier("mix_narrow.diag1", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.MixNarrowDiag2 = enc.Multiplier("mix_narrow.diag2", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
+	pt.MixNarrowDiag3 = enc.Multiplier("mix_narrow.diag3", 6, runtime.Scale{Pow2: 0, Num: []int{6}}, 8)
 	pt.MixNarrowBias = enc.Plaintext("mix_narrow.bias", 6, runtime.Scale{Pow2: 30, Num: []int{6}}, 8)
 	pt.RectifyPoly = enc.Polynomial("rectify.poly", runtime.Chebyshev)
-	pt.HeadDiag0 = enc.Plaintext("head.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
-	pt.HeadDiag1 = enc.Plaintext("head.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag0 = enc.Multiplier("head.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag1 = enc.Multiplier("head.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -90,18 +90,22 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// tolerance.yaml:17:5 hidden: dense 6→8 · level 11→10 · 4 rotations · baby-step giant-step 2×4 · 8 plaintext multiplications · 1 rescale
 	inputHoisted := ev.RotateHoisted(input, 1)
 	hiddenRot1 := inputHoisted[0]
-	hiddenProd0 := ev.MulPlain(input, pt.HiddenDiag0)
-	hiddenProd1 := ev.MulPlain(hiddenRot1, pt.HiddenDiag1)
-	hiddenBlock0Sum := ev.Add(hiddenProd0, hiddenProd1)
-	hiddenProd2 := ev.MulPlain(input, pt.HiddenDiag2)
-	hiddenProd3 := ev.MulPlain(hiddenRot1, pt.HiddenDiag3)
-	hiddenBlock2Sum := ev.Add(hiddenProd2, hiddenProd3)
-	hiddenProd4 := ev.MulPlain(input, pt.HiddenDiag4)
-	hiddenProd5 := ev.MulPlain(hiddenRot1, pt.HiddenDiag5)
-	hiddenBlock4Sum := ev.Add(hiddenProd4, hiddenProd5)
-	hiddenProd6 := ev.MulPlain(input, pt.HiddenDiag6)
-	hiddenProd7 := ev.MulPlain(hiddenRot1, pt.HiddenDiag7)
-	hiddenBlock6Sum := ev.Add(hiddenProd6, hiddenProd7)
+	hiddenBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{input, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag0, pt.HiddenDiag1},
+	)
+	hiddenBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{input, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag2, pt.HiddenDiag3},
+	)
+	hiddenBlock4Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{input, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag4, pt.HiddenDiag5},
+	)
+	hiddenBlock6Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{input, hiddenRot1},
+		[]*runtime.Plaintext{pt.HiddenDiag6, pt.HiddenDiag7},
+	)
 	hiddenAcc6 := ev.RotateSum(
 		[]*runtime.Ciphertext{hiddenBlock0Sum, hiddenBlock2Sum, hiddenBlock4Sum, hiddenBlock6Sum},
 		[]int{0, 2, 4, 6},
@@ -115,12 +119,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// tolerance.yaml:35:5 mix_narrow: linear 8→4 from mix (dense) · narrow (dense) (in blocks of 4) · level 6→5 · 3 rotations · baby-step giant-step 2×4 · 4 plaintext multiplications · 1 rescale
 	squashOutHoisted := ev.RotateHoisted(squashOut, 1)
 	mixNarrowRot1 := squashOutHoisted[0]
-	mixNarrowProd0 := ev.MulPlain(squashOut, pt.MixNarrowDiag0)
-	mixNarrowProd1 := ev.MulPlain(mixNarrowRot1, pt.MixNarrowDiag1)
-	mixNarrowBlock0Sum := ev.Add(mixNarrowProd0, mixNarrowProd1)
-	mixNarrowProd2 := ev.MulPlain(squashOut, pt.MixNarrowDiag2)
-	mixNarrowProd3 := ev.MulPlain(mixNarrowRot1, pt.MixNarrowDiag3)
-	mixNarrowBlock2Sum := ev.Add(mixNarrowProd2, mixNarrowProd3)
+	mixNarrowBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{squashOut, mixNarrowRot1},
+		[]*runtime.Plaintext{pt.MixNarrowDiag0, pt.MixNarrowDiag1},
+	)
+	mixNarrowBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{squashOut, mixNarrowRot1},
+		[]*runtime.Plaintext{pt.MixNarrowDiag2, pt.MixNarrowDiag3},
+	)
 	mixNarrowBlock2Rot := ev.Rotate(mixNarrowBlock2Sum, 2)
 	mixNarrowAcc2 := ev.Add(mixNarrowBlock0Sum, mixNarrowBlock2Rot)
 	mixNarrowFold4Rot := ev.Rotate(mixNarrowAcc2, 4)

@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{34359771137, 1073643521, 1073872897, 1073971201, 1073479681, 1074266113, 1073184769, 1074429953, 1073053697, 1072857089, 1072496641, 1075937281},
 	P:        []uint64{4398046150657},
 	LogScale: 30,
-	ModelID:  "4f7c46651a968254119841e9814d4998",
+	ModelID:  "1daac7d53c3303faf1519846a9f6d308",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation

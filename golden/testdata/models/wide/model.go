@@ -58,33 +58,33 @@ func Load(params *runtime.Params) (*Model, error) {
 	}
 	enc := runtime.NewEncoder(params, w)
 	pt := &Plaintexts{}
-	pt.Dense1Out0In0Diag0 = enc.Plaintext("dense1.out0.in0.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag1 = enc.Plaintext("dense1.out0.in0.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag0 = enc.Plaintext("dense1.out0.in1.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag1 = enc.Plaintext("dense1.out0.in1.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag2 = enc.Plaintext("dense1.out0.in0.diag2", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag3 = enc.Plaintext("dense1.out0.in0.diag3", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag2 = enc.Plaintext("dense1.out0.in1.diag2", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag3 = enc.Plaintext("dense1.out0.in1.diag3", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag4 = enc.Plaintext("dense1.out0.in0.diag4", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag5 = enc.Plaintext("dense1.out0.in0.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag4 = enc.Plaintext("dense1.out0.in1.diag4", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag5 = enc.Plaintext("dense1.out0.in1.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag6 = enc.Plaintext("dense1.out0.in0.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In0Diag7 = enc.Plaintext("dense1.out0.in0.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag6 = enc.Plaintext("dense1.out0.in1.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
-	pt.Dense1Out0In1Diag7 = enc.Plaintext("dense1.out0.in1.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag0 = enc.Multiplier("dense1.out0.in0.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag1 = enc.Multiplier("dense1.out0.in0.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag0 = enc.Multiplier("dense1.out0.in1.diag0", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag1 = enc.Multiplier("dense1.out0.in1.diag1", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag2 = enc.Multiplier("dense1.out0.in0.diag2", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag3 = enc.Multiplier("dense1.out0.in0.diag3", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag2 = enc.Multiplier("dense1.out0.in1.diag2", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag3 = enc.Multiplier("dense1.out0.in1.diag3", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag4 = enc.Multiplier("dense1.out0.in0.diag4", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag5 = enc.Multiplier("dense1.out0.in0.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag4 = enc.Multiplier("dense1.out0.in1.diag4", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag5 = enc.Multiplier("dense1.out0.in1.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag6 = enc.Multiplier("dense1.out0.in0.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In0Diag7 = enc.Multiplier("dense1.out0.in0.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag6 = enc.Multiplier("dense1.out0.in1.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
+	pt.Dense1Out0In1Diag7 = enc.Multiplier("dense1.out0.in1.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 4096)
 	pt.Dense1Out0Bias = enc.Plaintext("dense1.out0.bias", 3, runtime.Scale{Pow2: 27, Num: []int{3}}, 4096)
-	pt.Dense2Diag0 = enc.Plaintext("dense2.diag0", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag1 = enc.Plaintext("dense2.diag1", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag2 = enc.Plaintext("dense2.diag2", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag3 = enc.Plaintext("dense2.diag3", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag4 = enc.Plaintext("dense2.diag4", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag5 = enc.Plaintext("dense2.diag5", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag6 = enc.Plaintext("dense2.diag6", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag7 = enc.Plaintext("dense2.diag7", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag4094 = enc.Plaintext("dense2.diag4094", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag4095 = enc.Plaintext("dense2.diag4095", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag2 = enc.Multiplier("dense2.diag2", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag3 = enc.Multiplier("dense2.diag3", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag4 = enc.Multiplier("dense2.diag4", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag5 = enc.Multiplier("dense2.diag5", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag6 = enc.Multiplier("dense2.diag6", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag7 = enc.Multiplier("dense2.diag7", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag4094 = enc.Multiplier("dense2.diag4094", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag4095 = enc.Multiplier("dense2.diag4095", 1, runtime.Scale{Pow2: -27, Num: []int{1, 2}}, 4096)
 	pt.Dense2Bias = enc.Plaintext("dense2.bias", 1, runtime.Scale{Pow2: 27, Num: []int{1}}, 4096)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
@@ -113,34 +113,22 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1In0Rot1 := signal0Hoisted[0]
 	signal1Hoisted := ev.RotateHoisted(signal1, 1)
 	dense1In1Rot1 := signal1Hoisted[0]
-	dense1Out0In0Prod0 := ev.MulPlain(signal0, pt.Dense1Out0In0Diag0)
-	dense1Out0In0Prod1 := ev.MulPlain(dense1In0Rot1, pt.Dense1Out0In0Diag1)
-	dense1Out0Block0Sum := ev.Add(dense1Out0In0Prod0, dense1Out0In0Prod1)
-	dense1Out0In1Prod0 := ev.MulPlain(signal1, pt.Dense1Out0In1Diag0)
-	dense1Out0Block0Sum2 := ev.Add(dense1Out0Block0Sum, dense1Out0In1Prod0)
-	dense1Out0In1Prod1 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag1)
-	dense1Out0Block0Sum3 := ev.Add(dense1Out0Block0Sum2, dense1Out0In1Prod1)
-	dense1Out0In0Prod2 := ev.MulPlain(signal0, pt.Dense1Out0In0Diag2)
-	dense1Out0In0Prod3 := ev.MulPlain(dense1In0Rot1, pt.Dense1Out0In0Diag3)
-	dense1Out0Block1Sum := ev.Add(dense1Out0In0Prod2, dense1Out0In0Prod3)
-	dense1Out0In1Prod2 := ev.MulPlain(signal1, pt.Dense1Out0In1Diag2)
-	dense1Out0Block1Sum2 := ev.Add(dense1Out0Block1Sum, dense1Out0In1Prod2)
-	dense1Out0In1Prod3 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag3)
-	dense1Out0Block1Sum3 := ev.Add(dense1Out0Block1Sum2, dense1Out0In1Prod3)
-	dense1Out0In0Prod4 := ev.MulPlain(signal0, pt.Dense1Out0In0Diag4)
-	dense1Out0In0Prod5 := ev.MulPlain(dense1In0Rot1, pt.Dense1Out0In0Diag5)
-	dense1Out0Block2Sum := ev.Add(dense1Out0In0Prod4, dense1Out0In0Prod5)
-	dense1Out0In1Prod4 := ev.MulPlain(signal1, pt.Dense1Out0In1Diag4)
-	dense1Out0Block2Sum2 := ev.Add(dense1Out0Block2Sum, dense1Out0In1Prod4)
-	dense1Out0In1Prod5 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag5)
-	dense1Out0Block2Sum3 := ev.Add(dense1Out0Block2Sum2, dense1Out0In1Prod5)
-	dense1Out0In0Prod6 := ev.MulPlain(signal0, pt.Dense1Out0In0Diag6)
-	dense1Out0In0Prod7 := ev.MulPlain(dense1In0Rot1, pt.Dense1Out0In0Diag7)
-	dense1Out0Block3Sum := ev.Add(dense1Out0In0Prod6, dense1Out0In0Prod7)
-	dense1Out0In1Prod6 := ev.MulPlain(signal1, pt.Dense1Out0In1Diag6)
-	dense1Out0Block3Sum2 := ev.Add(dense1Out0Block3Sum, dense1Out0In1Prod6)
-	dense1Out0In1Prod7 := ev.MulPlain(dense1In1Rot1, pt.Dense1Out0In1Diag7)
-	dense1Out0Block3Sum3 := ev.Add(dense1Out0Block3Sum2, dense1Out0In1Prod7)
+	dense1Out0Block0Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{signal0, dense1In0Rot1, signal1, dense1In1Rot1},
+		[]*runtime.Plaintext{pt.Dense1Out0In0Diag0, pt.Dense1Out0In0Diag1, pt.Dense1Out0In1Diag0, pt.Dense1Out0In1Diag1},
+	)
+	dense1Out0Block1Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{signal0, dense1In0Rot1, signal1, dense1In1Rot1},
+		[]*runtime.Plaintext{pt.Dense1Out0In0Diag2, pt.Dense1Out0In0Diag3, pt.Dense1Out0In1Diag2, pt.Dense1Out0In1Diag3},
+	)
+	dense1Out0Block2Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{signal0, dense1In0Rot1, signal1, dense1In1Rot1},
+		[]*runtime.Plaintext{pt.Dense1Out0In0Diag4, pt.Dense1Out0In0Diag5, pt.Dense1Out0In1Diag4, pt.Dense1Out0In1Diag5},
+	)
+	dense1Out0Block3Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{signal0, dense1In0Rot1, signal1, dense1In1Rot1},
+		[]*runtime.Plaintext{pt.Dense1Out0In0Diag6, pt.Dense1Out0In0Diag7, pt.Dense1Out0In1Diag6, pt.Dense1Out0In1Diag7},
+	)
 	dense1Out0Acc3 := ev.RotateSum(
 		[]*runtime.Ciphertext{dense1Out0Block0Sum3, dense1Out0Block1Sum3, dense1Out0Block2Sum3, dense1Out0Block3Sum3},
 		[]int{0, 2, 4, 6},
@@ -174,21 +162,26 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// wide.yaml:30:5 dense2: dense 8→3 · level 1→0 · 5 rotations · baby-step giant-step 2×2048 · 10 plaintext multiplications · 1 rescale
 	act1SqRelinRescaledHoisted := ev.RotateHoisted(act1SqRelinRescaled, 1)
 	dense2Rot1 := act1SqRelinRescaledHoisted[0]
-	dense2Prod0 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag0)
-	dense2Prod1 := ev.MulPlain(dense2Rot1, pt.Dense2Diag1)
-	dense2Block0Sum := ev.Add(dense2Prod0, dense2Prod1)
-	dense2Prod2 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag2)
-	dense2Prod3 := ev.MulPlain(dense2Rot1, pt.Dense2Diag3)
-	dense2Block2Sum := ev.Add(dense2Prod2, dense2Prod3)
-	dense2Prod4 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag4)
-	dense2Prod5 := ev.MulPlain(dense2Rot1, pt.Dense2Diag5)
-	dense2Block4Sum := ev.Add(dense2Prod4, dense2Prod5)
-	dense2Prod6 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag6)
-	dense2Prod7 := ev.MulPlain(dense2Rot1, pt.Dense2Diag7)
-	dense2Block6Sum := ev.Add(dense2Prod6, dense2Prod7)
-	dense2Prod4094 := ev.MulPlain(act1SqRelinRescaled, pt.Dense2Diag4094)
-	dense2Prod4095 := ev.MulPlain(dense2Rot1, pt.Dense2Diag4095)
-	dense2Block4094Sum := ev.Add(dense2Prod4094, dense2Prod4095)
+	dense2Block0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag0, pt.Dense2Diag1},
+	)
+	dense2Block2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag2, pt.Dense2Diag3},
+	)
+	dense2Block4Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag4, pt.Dense2Diag5},
+	)
+	dense2Block6Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag6, pt.Dense2Diag7},
+	)
+	dense2Block4094Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{act1SqRelinRescaled, dense2Rot1},
+		[]*runtime.Plaintext{pt.Dense2Diag4094, pt.Dense2Diag4095},
+	)
 	dense2Acc4094 := ev.RotateSum(
 		[]*runtime.Ciphertext{dense2Block0Sum, dense2Block2Sum, dense2Block4Sum, dense2Block6Sum, dense2Block4094Sum},
 		[]int{0, 2, 4, 6, 4094},

@@ -31,7 +31,7 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{2199023288321, 134250497, 134348801, 134397953},
 	P:        []uint64{281474976694273},
 	LogScale: 27,
-	ModelID:  "b1f3cc37624de4b2bac3399202cd6e54",
+	ModelID:  "474d0d90a5d048a7f9dda1b1bc7031a3",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
