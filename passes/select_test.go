@@ -3,8 +3,8 @@ package passes
 import (
 	"errors"
 	"flag"
-	"maps"
 	"fmt"
+	"maps"
 	"math"
 	"path/filepath"
 	"strings"
