@@ -40,133 +40,37 @@ type Plaintexts struct {
 	Conv1Diag87   *runtime.Plaintext // level 5, scale q5
 	Conv1Bias     *runtime.Plaintext // level 5, scale 2^33·q5
 	Dense1Diag0   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag1   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag2   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag3   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag4   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag5   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag6   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag7   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag8   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag9   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag10  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag11  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag12  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag13  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag14  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag15  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag16  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag17  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag18  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag19  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag20  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag21  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag22  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag23  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag24  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag25  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag26  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag27  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag28  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag29  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag30  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag31  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag32  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag33  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag34  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag35  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag36  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag37  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag38  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag39  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag40  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag41  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag42  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag43  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag44  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag45  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag46  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag47  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag48  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag49  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag50  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag51  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag52  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag53  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag54  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag55  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag56  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag57  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag58  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag59  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag60  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag61  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag62  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag63  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag64  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag65  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag66  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag67  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag68  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag69  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag70  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag71  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag72  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag73  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag74  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag75  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag76  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag77  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag78  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag79  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag80  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag81  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag82  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag83  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag84  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag85  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag86  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag87  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag88  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag89  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag90  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag91  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag92  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag93  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag94  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag95  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag96  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag97  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag98  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag99  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag100 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag101 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag102 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag103 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag104 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag105 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag106 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag107 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag108 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag109 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag110 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag111 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag112 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag113 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag114 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag115 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag116 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag117 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag118 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag119 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag120 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag121 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag122 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag123 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag124 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag125 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag126 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag127 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Bias    *runtime.Plaintext // level 3, scale 2^33·q3
 	Dense2Diag0   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
 	Dense2Diag1   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
@@ -229,133 +133,37 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Conv1Diag87 = enc.Plaintext("conv1.diag87", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 4096)
 	pt.Conv1Bias = enc.Plaintext("conv1.bias", 5, runtime.Scale{Pow2: 33, Num: []int{5}}, 4096)
 	pt.Dense1Diag0 = enc.Plaintext("dense1.diag0", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag1 = enc.Plaintext("dense1.diag1", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag2 = enc.Plaintext("dense1.diag2", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag3 = enc.Plaintext("dense1.diag3", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag4 = enc.Plaintext("dense1.diag4", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag5 = enc.Plaintext("dense1.diag5", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag6 = enc.Plaintext("dense1.diag6", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag7 = enc.Plaintext("dense1.diag7", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag8 = enc.Plaintext("dense1.diag8", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag9 = enc.Plaintext("dense1.diag9", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag10 = enc.Plaintext("dense1.diag10", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag11 = enc.Plaintext("dense1.diag11", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag12 = enc.Plaintext("dense1.diag12", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag13 = enc.Plaintext("dense1.diag13", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag14 = enc.Plaintext("dense1.diag14", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag15 = enc.Plaintext("dense1.diag15", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag16 = enc.Plaintext("dense1.diag16", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag17 = enc.Plaintext("dense1.diag17", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag18 = enc.Plaintext("dense1.diag18", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag19 = enc.Plaintext("dense1.diag19", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag20 = enc.Plaintext("dense1.diag20", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag21 = enc.Plaintext("dense1.diag21", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag22 = enc.Plaintext("dense1.diag22", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag23 = enc.Plaintext("dense1.diag23", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag24 = enc.Plaintext("dense1.diag24", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag25 = enc.Plaintext("dense1.diag25", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag26 = enc.Plaintext("dense1.diag26", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag27 = enc.Plaintext("dense1.diag27", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag28 = enc.Plaintext("dense1.diag28", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag29 = enc.Plaintext("dense1.diag29", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag30 = enc.Plaintext("dense1.diag30", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag31 = enc.Plaintext("dense1.diag31", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag32 = enc.Plaintext("dense1.diag32", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag33 = enc.Plaintext("dense1.diag33", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag34 = enc.Plaintext("dense1.diag34", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag35 = enc.Plaintext("dense1.diag35", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag36 = enc.Plaintext("dense1.diag36", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag37 = enc.Plaintext("dense1.diag37", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag38 = enc.Plaintext("dense1.diag38", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag39 = enc.Plaintext("dense1.diag39", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag40 = enc.Plaintext("dense1.diag40", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag41 = enc.Plaintext("dense1.diag41", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag42 = enc.Plaintext("dense1.diag42", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag43 = enc.Plaintext("dense1.diag43", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag44 = enc.Plaintext("dense1.diag44", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag45 = enc.Plaintext("dense1.diag45", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag46 = enc.Plaintext("dense1.diag46", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag47 = enc.Plaintext("dense1.diag47", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag48 = enc.Plaintext("dense1.diag48", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag49 = enc.Plaintext("dense1.diag49", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag50 = enc.Plaintext("dense1.diag50", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag51 = enc.Plaintext("dense1.diag51", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag52 = enc.Plaintext("dense1.diag52", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag53 = enc.Plaintext("dense1.diag53", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag54 = enc.Plaintext("dense1.diag54", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag55 = enc.Plaintext("dense1.diag55", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag56 = enc.Plaintext("dense1.diag56", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag57 = enc.Plaintext("dense1.diag57", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag58 = enc.Plaintext("dense1.diag58", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag59 = enc.Plaintext("dense1.diag59", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag60 = enc.Plaintext("dense1.diag60", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag61 = enc.Plaintext("dense1.diag61", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag62 = enc.Plaintext("dense1.diag62", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag63 = enc.Plaintext("dense1.diag63", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag64 = enc.Plaintext("dense1.diag64", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag65 = enc.Plaintext("dense1.diag65", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag66 = enc.Plaintext("dense1.diag66", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag67 = enc.Plaintext("dense1.diag67", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag68 = enc.Plaintext("dense1.diag68", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag69 = enc.Plaintext("dense1.diag69", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag70 = enc.Plaintext("dense1.diag70", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag71 = enc.Plaintext("dense1.diag71", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag72 = enc.Plaintext("dense1.diag72", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag73 = enc.Plaintext("dense1.diag73", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag74 = enc.Plaintext("dense1.diag74", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag75 = enc.Plaintext("dense1.diag75", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag76 = enc.Plaintext("dense1.diag76", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag77 = enc.Plaintext("dense1.diag77", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag78 = enc.Plaintext("dense1.diag78", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag79 = enc.Plaintext("dense1.diag79", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag80 = enc.Plaintext("dense1.diag80", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag81 = enc.Plaintext("dense1.diag81", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag82 = enc.Plaintext("dense1.diag82", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag83 = enc.Plaintext("dense1.diag83", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag84 = enc.Plaintext("dense1.diag84", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag85 = enc.Plaintext("dense1.diag85", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag86 = enc.Plaintext("dense1.diag86", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag87 = enc.Plaintext("dense1.diag87", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag88 = enc.Plaintext("dense1.diag88", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag89 = enc.Plaintext("dense1.diag89", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag90 = enc.Plaintext("dense1.diag90", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag91 = enc.Plaintext("dense1.diag91", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag92 = enc.Plaintext("dense1.diag92", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag93 = enc.Plaintext("dense1.diag93", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag94 = enc.Plaintext("dense1.diag94", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag95 = enc.Plaintext("dense1.diag95", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag96 = enc.Plaintext("dense1.diag96", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag97 = enc.Plaintext("dense1.diag97", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag98 = enc.Plaintext("dense1.diag98", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag99 = enc.Plaintext("dense1.diag99", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag100 = enc.Plaintext("dense1.diag100", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag101 = enc.Plaintext("dense1.diag101", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag102 = enc.Plaintext("dense1.diag102", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag103 = enc.Plaintext("dense1.diag103", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag104 = enc.Plaintext("dense1.diag104", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag105 = enc.Plaintext("dense1.diag105", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag106 = enc.Plaintext("dense1.diag106", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag107 = enc.Plaintext("dense1.diag107", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag108 = enc.Plaintext("dense1.diag108", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag109 = enc.Plaintext("dense1.diag109", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag110 = enc.Plaintext("dense1.diag110", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag111 = enc.Plaintext("dense1.diag111", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag112 = enc.Plaintext("dense1.diag112", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag113 = enc.Plaintext("dense1.diag113", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag114 = enc.Plaintext("dense1.diag114", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag115 = enc.Plaintext("dense1.diag115", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag116 = enc.Plaintext("dense1.diag116", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag117 = enc.Plaintext("dense1.diag117", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag118 = enc.Plaintext("dense1.diag118", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag119 = enc.Plaintext("dense1.diag119", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag120 = enc.Plaintext("dense1.diag120", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag121 = enc.Plaintext("dense1.diag121", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag122 = enc.Plaintext("dense1.diag122", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag123 = enc.Plaintext("dense1.diag123", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag124 = enc.Plaintext("dense1.diag124", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag125 = enc.Plaintext("dense1.diag125", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag126 = enc.Plaintext("dense1.diag126", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag127 = enc.Plaintext("dense1.diag127", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Bias = enc.Plaintext("dense1.bias", 3, runtime.Scale{Pow2: 33, Num: []int{3}}, 4096)
 	pt.Dense2Diag0 = enc.Plaintext("dense2.diag0", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
 	pt.Dense2Diag1 = enc.Plaintext("dense2.diag1", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
@@ -459,278 +267,86 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	square1SqRelin := ev.Relinearize(square1Sq)
 	square1SqRelinRescaled := ev.Rescale(square1SqRelin)
 
-	// digits.yaml:31:5 dense1: dense 3920→100 (in blocks of 128) · level 3→2 · 26 rotations (9 hoisted) · baby-step giant-step 10×410 · 128 plaintext multiplications · 1 rescale
-	square1SqRelinRescaledHoisted := ev.RotateHoisted(square1SqRelinRescaled, 1, 2, 3, 4, 5, 6, 7, 8, 9)
-	dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9 := square1SqRelinRescaledHoisted[0], square1SqRelinRescaledHoisted[1], square1SqRelinRescaledHoisted[2], square1SqRelinRescaledHoisted[3], square1SqRelinRescaledHoisted[4], square1SqRelinRescaledHoisted[5], square1SqRelinRescaledHoisted[6], square1SqRelinRescaledHoisted[7], square1SqRelinRescaledHoisted[8]
-	dense1Prod0 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag0)
-	dense1Prod1 := ev.MulPlain(dense1Rot1, pt.Dense1Diag1)
-	dense1Block0Sum := ev.Add(dense1Prod0, dense1Prod1)
-	dense1Prod2 := ev.MulPlain(dense1Rot2, pt.Dense1Diag2)
-	dense1Block0Sum2 := ev.Add(dense1Block0Sum, dense1Prod2)
-	dense1Prod3 := ev.MulPlain(dense1Rot3, pt.Dense1Diag3)
-	dense1Block0Sum3 := ev.Add(dense1Block0Sum2, dense1Prod3)
+	// digits.yaml:31:5 dense1: dense 3920→100 (in blocks of 128, 4 shifted copies, 32 diagonals) · level 3→2 · 18 rotations (6 hoisted) · baby-step giant-step 16×256 · 32 plaintext multiplications · 1 rescale
+	square1SqRelinRescaledHoisted := ev.RotateHoisted(square1SqRelinRescaled, 4095, 254, 253)
+	dense1Copy4095, dense1Copy254, dense1Copy253 := square1SqRelinRescaledHoisted[0], square1SqRelinRescaledHoisted[1], square1SqRelinRescaledHoisted[2]
+	dense1Copies2 := ev.Add(square1SqRelinRescaled, dense1Copy4095)
+	dense1Copies3 := ev.Add(dense1Copies2, dense1Copy254)
+	dense1Copies := ev.Add(dense1Copies3, dense1Copy253)
+	dense1CopiesHoisted := ev.RotateHoisted(dense1Copies, 4, 8, 12)
+	dense1Rot4, dense1Rot8, dense1Rot12 := dense1CopiesHoisted[0], dense1CopiesHoisted[1], dense1CopiesHoisted[2]
+	dense1Prod0 := ev.MulPlain(dense1Copies, pt.Dense1Diag0)
 	dense1Prod4 := ev.MulPlain(dense1Rot4, pt.Dense1Diag4)
-	dense1Block0Sum4 := ev.Add(dense1Block0Sum3, dense1Prod4)
-	dense1Prod5 := ev.MulPlain(dense1Rot5, pt.Dense1Diag5)
-	dense1Block0Sum5 := ev.Add(dense1Block0Sum4, dense1Prod5)
-	dense1Prod6 := ev.MulPlain(dense1Rot6, pt.Dense1Diag6)
-	dense1Block0Sum6 := ev.Add(dense1Block0Sum5, dense1Prod6)
-	dense1Prod7 := ev.MulPlain(dense1Rot7, pt.Dense1Diag7)
-	dense1Block0Sum7 := ev.Add(dense1Block0Sum6, dense1Prod7)
+	dense1Block0Sum := ev.Add(dense1Prod0, dense1Prod4)
 	dense1Prod8 := ev.MulPlain(dense1Rot8, pt.Dense1Diag8)
-	dense1Block0Sum8 := ev.Add(dense1Block0Sum7, dense1Prod8)
-	dense1Prod9 := ev.MulPlain(dense1Rot9, pt.Dense1Diag9)
-	dense1Block0Sum9 := ev.Add(dense1Block0Sum8, dense1Prod9)
-	dense1Prod10 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag10)
-	dense1Prod11 := ev.MulPlain(dense1Rot1, pt.Dense1Diag11)
-	dense1Block10Sum := ev.Add(dense1Prod10, dense1Prod11)
-	dense1Prod12 := ev.MulPlain(dense1Rot2, pt.Dense1Diag12)
-	dense1Block10Sum2 := ev.Add(dense1Block10Sum, dense1Prod12)
-	dense1Prod13 := ev.MulPlain(dense1Rot3, pt.Dense1Diag13)
-	dense1Block10Sum3 := ev.Add(dense1Block10Sum2, dense1Prod13)
-	dense1Prod14 := ev.MulPlain(dense1Rot4, pt.Dense1Diag14)
-	dense1Block10Sum4 := ev.Add(dense1Block10Sum3, dense1Prod14)
-	dense1Prod15 := ev.MulPlain(dense1Rot5, pt.Dense1Diag15)
-	dense1Block10Sum5 := ev.Add(dense1Block10Sum4, dense1Prod15)
-	dense1Prod16 := ev.MulPlain(dense1Rot6, pt.Dense1Diag16)
-	dense1Block10Sum6 := ev.Add(dense1Block10Sum5, dense1Prod16)
-	dense1Prod17 := ev.MulPlain(dense1Rot7, pt.Dense1Diag17)
-	dense1Block10Sum7 := ev.Add(dense1Block10Sum6, dense1Prod17)
-	dense1Prod18 := ev.MulPlain(dense1Rot8, pt.Dense1Diag18)
-	dense1Block10Sum8 := ev.Add(dense1Block10Sum7, dense1Prod18)
-	dense1Prod19 := ev.MulPlain(dense1Rot9, pt.Dense1Diag19)
-	dense1Block10Sum9 := ev.Add(dense1Block10Sum8, dense1Prod19)
-	dense1Block10Rot := ev.Rotate(dense1Block10Sum9, 10)
-	dense1Acc10 := ev.Add(dense1Block0Sum9, dense1Block10Rot)
-	dense1Prod20 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag20)
-	dense1Prod21 := ev.MulPlain(dense1Rot1, pt.Dense1Diag21)
-	dense1Block20Sum := ev.Add(dense1Prod20, dense1Prod21)
-	dense1Prod22 := ev.MulPlain(dense1Rot2, pt.Dense1Diag22)
-	dense1Block20Sum2 := ev.Add(dense1Block20Sum, dense1Prod22)
-	dense1Prod23 := ev.MulPlain(dense1Rot3, pt.Dense1Diag23)
-	dense1Block20Sum3 := ev.Add(dense1Block20Sum2, dense1Prod23)
-	dense1Prod24 := ev.MulPlain(dense1Rot4, pt.Dense1Diag24)
-	dense1Block20Sum4 := ev.Add(dense1Block20Sum3, dense1Prod24)
-	dense1Prod25 := ev.MulPlain(dense1Rot5, pt.Dense1Diag25)
-	dense1Block20Sum5 := ev.Add(dense1Block20Sum4, dense1Prod25)
-	dense1Prod26 := ev.MulPlain(dense1Rot6, pt.Dense1Diag26)
-	dense1Block20Sum6 := ev.Add(dense1Block20Sum5, dense1Prod26)
-	dense1Prod27 := ev.MulPlain(dense1Rot7, pt.Dense1Diag27)
-	dense1Block20Sum7 := ev.Add(dense1Block20Sum6, dense1Prod27)
-	dense1Prod28 := ev.MulPlain(dense1Rot8, pt.Dense1Diag28)
-	dense1Block20Sum8 := ev.Add(dense1Block20Sum7, dense1Prod28)
-	dense1Prod29 := ev.MulPlain(dense1Rot9, pt.Dense1Diag29)
-	dense1Block20Sum9 := ev.Add(dense1Block20Sum8, dense1Prod29)
-	dense1Block20Rot := ev.Rotate(dense1Block20Sum9, 20)
-	dense1Acc20 := ev.Add(dense1Acc10, dense1Block20Rot)
-	dense1Prod30 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag30)
-	dense1Prod31 := ev.MulPlain(dense1Rot1, pt.Dense1Diag31)
-	dense1Block30Sum := ev.Add(dense1Prod30, dense1Prod31)
-	dense1Prod32 := ev.MulPlain(dense1Rot2, pt.Dense1Diag32)
-	dense1Block30Sum2 := ev.Add(dense1Block30Sum, dense1Prod32)
-	dense1Prod33 := ev.MulPlain(dense1Rot3, pt.Dense1Diag33)
-	dense1Block30Sum3 := ev.Add(dense1Block30Sum2, dense1Prod33)
-	dense1Prod34 := ev.MulPlain(dense1Rot4, pt.Dense1Diag34)
-	dense1Block30Sum4 := ev.Add(dense1Block30Sum3, dense1Prod34)
-	dense1Prod35 := ev.MulPlain(dense1Rot5, pt.Dense1Diag35)
-	dense1Block30Sum5 := ev.Add(dense1Block30Sum4, dense1Prod35)
-	dense1Prod36 := ev.MulPlain(dense1Rot6, pt.Dense1Diag36)
-	dense1Block30Sum6 := ev.Add(dense1Block30Sum5, dense1Prod36)
-	dense1Prod37 := ev.MulPlain(dense1Rot7, pt.Dense1Diag37)
-	dense1Block30Sum7 := ev.Add(dense1Block30Sum6, dense1Prod37)
-	dense1Prod38 := ev.MulPlain(dense1Rot8, pt.Dense1Diag38)
-	dense1Block30Sum8 := ev.Add(dense1Block30Sum7, dense1Prod38)
-	dense1Prod39 := ev.MulPlain(dense1Rot9, pt.Dense1Diag39)
-	dense1Block30Sum9 := ev.Add(dense1Block30Sum8, dense1Prod39)
-	dense1Block30Rot := ev.Rotate(dense1Block30Sum9, 30)
-	dense1Acc30 := ev.Add(dense1Acc20, dense1Block30Rot)
-	dense1Prod40 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag40)
-	dense1Prod41 := ev.MulPlain(dense1Rot1, pt.Dense1Diag41)
-	dense1Block40Sum := ev.Add(dense1Prod40, dense1Prod41)
-	dense1Prod42 := ev.MulPlain(dense1Rot2, pt.Dense1Diag42)
-	dense1Block40Sum2 := ev.Add(dense1Block40Sum, dense1Prod42)
-	dense1Prod43 := ev.MulPlain(dense1Rot3, pt.Dense1Diag43)
-	dense1Block40Sum3 := ev.Add(dense1Block40Sum2, dense1Prod43)
-	dense1Prod44 := ev.MulPlain(dense1Rot4, pt.Dense1Diag44)
-	dense1Block40Sum4 := ev.Add(dense1Block40Sum3, dense1Prod44)
-	dense1Prod45 := ev.MulPlain(dense1Rot5, pt.Dense1Diag45)
-	dense1Block40Sum5 := ev.Add(dense1Block40Sum4, dense1Prod45)
-	dense1Prod46 := ev.MulPlain(dense1Rot6, pt.Dense1Diag46)
-	dense1Block40Sum6 := ev.Add(dense1Block40Sum5, dense1Prod46)
-	dense1Prod47 := ev.MulPlain(dense1Rot7, pt.Dense1Diag47)
-	dense1Block40Sum7 := ev.Add(dense1Block40Sum6, dense1Prod47)
-	dense1Prod48 := ev.MulPlain(dense1Rot8, pt.Dense1Diag48)
-	dense1Block40Sum8 := ev.Add(dense1Block40Sum7, dense1Prod48)
-	dense1Prod49 := ev.MulPlain(dense1Rot9, pt.Dense1Diag49)
-	dense1Block40Sum9 := ev.Add(dense1Block40Sum8, dense1Prod49)
-	dense1Block40Rot := ev.Rotate(dense1Block40Sum9, 40)
-	dense1Acc40 := ev.Add(dense1Acc30, dense1Block40Rot)
-	dense1Prod50 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag50)
-	dense1Prod51 := ev.MulPlain(dense1Rot1, pt.Dense1Diag51)
-	dense1Block50Sum := ev.Add(dense1Prod50, dense1Prod51)
-	dense1Prod52 := ev.MulPlain(dense1Rot2, pt.Dense1Diag52)
-	dense1Block50Sum2 := ev.Add(dense1Block50Sum, dense1Prod52)
-	dense1Prod53 := ev.MulPlain(dense1Rot3, pt.Dense1Diag53)
-	dense1Block50Sum3 := ev.Add(dense1Block50Sum2, dense1Prod53)
-	dense1Prod54 := ev.MulPlain(dense1Rot4, pt.Dense1Diag54)
-	dense1Block50Sum4 := ev.Add(dense1Block50Sum3, dense1Prod54)
-	dense1Prod55 := ev.MulPlain(dense1Rot5, pt.Dense1Diag55)
-	dense1Block50Sum5 := ev.Add(dense1Block50Sum4, dense1Prod55)
-	dense1Prod56 := ev.MulPlain(dense1Rot6, pt.Dense1Diag56)
-	dense1Block50Sum6 := ev.Add(dense1Block50Sum5, dense1Prod56)
-	dense1Prod57 := ev.MulPlain(dense1Rot7, pt.Dense1Diag57)
-	dense1Block50Sum7 := ev.Add(dense1Block50Sum6, dense1Prod57)
-	dense1Prod58 := ev.MulPlain(dense1Rot8, pt.Dense1Diag58)
-	dense1Block50Sum8 := ev.Add(dense1Block50Sum7, dense1Prod58)
-	dense1Prod59 := ev.MulPlain(dense1Rot9, pt.Dense1Diag59)
-	dense1Block50Sum9 := ev.Add(dense1Block50Sum8, dense1Prod59)
-	dense1Block50Rot := ev.Rotate(dense1Block50Sum9, 50)
-	dense1Acc50 := ev.Add(dense1Acc40, dense1Block50Rot)
-	dense1Prod60 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag60)
-	dense1Prod61 := ev.MulPlain(dense1Rot1, pt.Dense1Diag61)
-	dense1Block60Sum := ev.Add(dense1Prod60, dense1Prod61)
-	dense1Prod62 := ev.MulPlain(dense1Rot2, pt.Dense1Diag62)
-	dense1Block60Sum2 := ev.Add(dense1Block60Sum, dense1Prod62)
-	dense1Prod63 := ev.MulPlain(dense1Rot3, pt.Dense1Diag63)
-	dense1Block60Sum3 := ev.Add(dense1Block60Sum2, dense1Prod63)
-	dense1Prod64 := ev.MulPlain(dense1Rot4, pt.Dense1Diag64)
-	dense1Block60Sum4 := ev.Add(dense1Block60Sum3, dense1Prod64)
-	dense1Prod65 := ev.MulPlain(dense1Rot5, pt.Dense1Diag65)
-	dense1Block60Sum5 := ev.Add(dense1Block60Sum4, dense1Prod65)
-	dense1Prod66 := ev.MulPlain(dense1Rot6, pt.Dense1Diag66)
-	dense1Block60Sum6 := ev.Add(dense1Block60Sum5, dense1Prod66)
-	dense1Prod67 := ev.MulPlain(dense1Rot7, pt.Dense1Diag67)
-	dense1Block60Sum7 := ev.Add(dense1Block60Sum6, dense1Prod67)
-	dense1Prod68 := ev.MulPlain(dense1Rot8, pt.Dense1Diag68)
-	dense1Block60Sum8 := ev.Add(dense1Block60Sum7, dense1Prod68)
-	dense1Prod69 := ev.MulPlain(dense1Rot9, pt.Dense1Diag69)
-	dense1Block60Sum9 := ev.Add(dense1Block60Sum8, dense1Prod69)
-	dense1Block60Rot := ev.Rotate(dense1Block60Sum9, 60)
-	dense1Acc60 := ev.Add(dense1Acc50, dense1Block60Rot)
-	dense1Prod70 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag70)
-	dense1Prod71 := ev.MulPlain(dense1Rot1, pt.Dense1Diag71)
-	dense1Block70Sum := ev.Add(dense1Prod70, dense1Prod71)
-	dense1Prod72 := ev.MulPlain(dense1Rot2, pt.Dense1Diag72)
-	dense1Block70Sum2 := ev.Add(dense1Block70Sum, dense1Prod72)
-	dense1Prod73 := ev.MulPlain(dense1Rot3, pt.Dense1Diag73)
-	dense1Block70Sum3 := ev.Add(dense1Block70Sum2, dense1Prod73)
-	dense1Prod74 := ev.MulPlain(dense1Rot4, pt.Dense1Diag74)
-	dense1Block70Sum4 := ev.Add(dense1Block70Sum3, dense1Prod74)
-	dense1Prod75 := ev.MulPlain(dense1Rot5, pt.Dense1Diag75)
-	dense1Block70Sum5 := ev.Add(dense1Block70Sum4, dense1Prod75)
-	dense1Prod76 := ev.MulPlain(dense1Rot6, pt.Dense1Diag76)
-	dense1Block70Sum6 := ev.Add(dense1Block70Sum5, dense1Prod76)
-	dense1Prod77 := ev.MulPlain(dense1Rot7, pt.Dense1Diag77)
-	dense1Block70Sum7 := ev.Add(dense1Block70Sum6, dense1Prod77)
-	dense1Prod78 := ev.MulPlain(dense1Rot8, pt.Dense1Diag78)
-	dense1Block70Sum8 := ev.Add(dense1Block70Sum7, dense1Prod78)
-	dense1Prod79 := ev.MulPlain(dense1Rot9, pt.Dense1Diag79)
-	dense1Block70Sum9 := ev.Add(dense1Block70Sum8, dense1Prod79)
-	dense1Block70Rot := ev.Rotate(dense1Block70Sum9, 70)
-	dense1Acc70 := ev.Add(dense1Acc60, dense1Block70Rot)
-	dense1Prod80 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag80)
-	dense1Prod81 := ev.MulPlain(dense1Rot1, pt.Dense1Diag81)
-	dense1Block80Sum := ev.Add(dense1Prod80, dense1Prod81)
-	dense1Prod82 := ev.MulPlain(dense1Rot2, pt.Dense1Diag82)
-	dense1Block80Sum2 := ev.Add(dense1Block80Sum, dense1Prod82)
-	dense1Prod83 := ev.MulPlain(dense1Rot3, pt.Dense1Diag83)
-	dense1Block80Sum3 := ev.Add(dense1Block80Sum2, dense1Prod83)
+	dense1Block0Sum2 := ev.Add(dense1Block0Sum, dense1Prod8)
+	dense1Prod12 := ev.MulPlain(dense1Rot12, pt.Dense1Diag12)
+	dense1Block0Sum3 := ev.Add(dense1Block0Sum2, dense1Prod12)
+	dense1Prod16 := ev.MulPlain(dense1Copies, pt.Dense1Diag16)
+	dense1Prod20 := ev.MulPlain(dense1Rot4, pt.Dense1Diag20)
+	dense1Block16Sum := ev.Add(dense1Prod16, dense1Prod20)
+	dense1Prod24 := ev.MulPlain(dense1Rot8, pt.Dense1Diag24)
+	dense1Block16Sum2 := ev.Add(dense1Block16Sum, dense1Prod24)
+	dense1Prod28 := ev.MulPlain(dense1Rot12, pt.Dense1Diag28)
+	dense1Block16Sum3 := ev.Add(dense1Block16Sum2, dense1Prod28)
+	dense1Block16Rot := ev.Rotate(dense1Block16Sum3, 16)
+	dense1Acc16 := ev.Add(dense1Block0Sum3, dense1Block16Rot)
+	dense1Prod32 := ev.MulPlain(dense1Copies, pt.Dense1Diag32)
+	dense1Prod36 := ev.MulPlain(dense1Rot4, pt.Dense1Diag36)
+	dense1Block32Sum := ev.Add(dense1Prod32, dense1Prod36)
+	dense1Prod40 := ev.MulPlain(dense1Rot8, pt.Dense1Diag40)
+	dense1Block32Sum2 := ev.Add(dense1Block32Sum, dense1Prod40)
+	dense1Prod44 := ev.MulPlain(dense1Rot12, pt.Dense1Diag44)
+	dense1Block32Sum3 := ev.Add(dense1Block32Sum2, dense1Prod44)
+	dense1Block32Rot := ev.Rotate(dense1Block32Sum3, 32)
+	dense1Acc32 := ev.Add(dense1Acc16, dense1Block32Rot)
+	dense1Prod48 := ev.MulPlain(dense1Copies, pt.Dense1Diag48)
+	dense1Prod52 := ev.MulPlain(dense1Rot4, pt.Dense1Diag52)
+	dense1Block48Sum := ev.Add(dense1Prod48, dense1Prod52)
+	dense1Prod56 := ev.MulPlain(dense1Rot8, pt.Dense1Diag56)
+	dense1Block48Sum2 := ev.Add(dense1Block48Sum, dense1Prod56)
+	dense1Prod60 := ev.MulPlain(dense1Rot12, pt.Dense1Diag60)
+	dense1Block48Sum3 := ev.Add(dense1Block48Sum2, dense1Prod60)
+	dense1Block48Rot := ev.Rotate(dense1Block48Sum3, 48)
+	dense1Acc48 := ev.Add(dense1Acc32, dense1Block48Rot)
+	dense1Prod64 := ev.MulPlain(dense1Copies, pt.Dense1Diag64)
+	dense1Prod68 := ev.MulPlain(dense1Rot4, pt.Dense1Diag68)
+	dense1Block64Sum := ev.Add(dense1Prod64, dense1Prod68)
+	dense1Prod72 := ev.MulPlain(dense1Rot8, pt.Dense1Diag72)
+	dense1Block64Sum2 := ev.Add(dense1Block64Sum, dense1Prod72)
+	dense1Prod76 := ev.MulPlain(dense1Rot12, pt.Dense1Diag76)
+	dense1Block64Sum3 := ev.Add(dense1Block64Sum2, dense1Prod76)
+	dense1Block64Rot := ev.Rotate(dense1Block64Sum3, 64)
+	dense1Acc64 := ev.Add(dense1Acc48, dense1Block64Rot)
+	dense1Prod80 := ev.MulPlain(dense1Copies, pt.Dense1Diag80)
 	dense1Prod84 := ev.MulPlain(dense1Rot4, pt.Dense1Diag84)
-	dense1Block80Sum4 := ev.Add(dense1Block80Sum3, dense1Prod84)
-	dense1Prod85 := ev.MulPlain(dense1Rot5, pt.Dense1Diag85)
-	dense1Block80Sum5 := ev.Add(dense1Block80Sum4, dense1Prod85)
-	dense1Prod86 := ev.MulPlain(dense1Rot6, pt.Dense1Diag86)
-	dense1Block80Sum6 := ev.Add(dense1Block80Sum5, dense1Prod86)
-	dense1Prod87 := ev.MulPlain(dense1Rot7, pt.Dense1Diag87)
-	dense1Block80Sum7 := ev.Add(dense1Block80Sum6, dense1Prod87)
+	dense1Block80Sum := ev.Add(dense1Prod80, dense1Prod84)
 	dense1Prod88 := ev.MulPlain(dense1Rot8, pt.Dense1Diag88)
-	dense1Block80Sum8 := ev.Add(dense1Block80Sum7, dense1Prod88)
-	dense1Prod89 := ev.MulPlain(dense1Rot9, pt.Dense1Diag89)
-	dense1Block80Sum9 := ev.Add(dense1Block80Sum8, dense1Prod89)
-	dense1Block80Rot := ev.Rotate(dense1Block80Sum9, 80)
-	dense1Acc80 := ev.Add(dense1Acc70, dense1Block80Rot)
-	dense1Prod90 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag90)
-	dense1Prod91 := ev.MulPlain(dense1Rot1, pt.Dense1Diag91)
-	dense1Block90Sum := ev.Add(dense1Prod90, dense1Prod91)
-	dense1Prod92 := ev.MulPlain(dense1Rot2, pt.Dense1Diag92)
-	dense1Block90Sum2 := ev.Add(dense1Block90Sum, dense1Prod92)
-	dense1Prod93 := ev.MulPlain(dense1Rot3, pt.Dense1Diag93)
-	dense1Block90Sum3 := ev.Add(dense1Block90Sum2, dense1Prod93)
-	dense1Prod94 := ev.MulPlain(dense1Rot4, pt.Dense1Diag94)
-	dense1Block90Sum4 := ev.Add(dense1Block90Sum3, dense1Prod94)
-	dense1Prod95 := ev.MulPlain(dense1Rot5, pt.Dense1Diag95)
-	dense1Block90Sum5 := ev.Add(dense1Block90Sum4, dense1Prod95)
-	dense1Prod96 := ev.MulPlain(dense1Rot6, pt.Dense1Diag96)
-	dense1Block90Sum6 := ev.Add(dense1Block90Sum5, dense1Prod96)
-	dense1Prod97 := ev.MulPlain(dense1Rot7, pt.Dense1Diag97)
-	dense1Block90Sum7 := ev.Add(dense1Block90Sum6, dense1Prod97)
-	dense1Prod98 := ev.MulPlain(dense1Rot8, pt.Dense1Diag98)
-	dense1Block90Sum8 := ev.Add(dense1Block90Sum7, dense1Prod98)
-	dense1Prod99 := ev.MulPlain(dense1Rot9, pt.Dense1Diag99)
-	dense1Block90Sum9 := ev.Add(dense1Block90Sum8, dense1Prod99)
-	dense1Block90Rot := ev.Rotate(dense1Block90Sum9, 90)
-	dense1Acc90 := ev.Add(dense1Acc80, dense1Block90Rot)
-	dense1Prod100 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag100)
-	dense1Prod101 := ev.MulPlain(dense1Rot1, pt.Dense1Diag101)
-	dense1Block100Sum := ev.Add(dense1Prod100, dense1Prod101)
-	dense1Prod102 := ev.MulPlain(dense1Rot2, pt.Dense1Diag102)
-	dense1Block100Sum2 := ev.Add(dense1Block100Sum, dense1Prod102)
-	dense1Prod103 := ev.MulPlain(dense1Rot3, pt.Dense1Diag103)
-	dense1Block100Sum3 := ev.Add(dense1Block100Sum2, dense1Prod103)
-	dense1Prod104 := ev.MulPlain(dense1Rot4, pt.Dense1Diag104)
-	dense1Block100Sum4 := ev.Add(dense1Block100Sum3, dense1Prod104)
-	dense1Prod105 := ev.MulPlain(dense1Rot5, pt.Dense1Diag105)
-	dense1Block100Sum5 := ev.Add(dense1Block100Sum4, dense1Prod105)
-	dense1Prod106 := ev.MulPlain(dense1Rot6, pt.Dense1Diag106)
-	dense1Block100Sum6 := ev.Add(dense1Block100Sum5, dense1Prod106)
-	dense1Prod107 := ev.MulPlain(dense1Rot7, pt.Dense1Diag107)
-	dense1Block100Sum7 := ev.Add(dense1Block100Sum6, dense1Prod107)
-	dense1Prod108 := ev.MulPlain(dense1Rot8, pt.Dense1Diag108)
-	dense1Block100Sum8 := ev.Add(dense1Block100Sum7, dense1Prod108)
-	dense1Prod109 := ev.MulPlain(dense1Rot9, pt.Dense1Diag109)
-	dense1Block100Sum9 := ev.Add(dense1Block100Sum8, dense1Prod109)
-	dense1Block100Rot := ev.Rotate(dense1Block100Sum9, 100)
-	dense1Acc100 := ev.Add(dense1Acc90, dense1Block100Rot)
-	dense1Prod110 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag110)
-	dense1Prod111 := ev.MulPlain(dense1Rot1, pt.Dense1Diag111)
-	dense1Block110Sum := ev.Add(dense1Prod110, dense1Prod111)
-	dense1Prod112 := ev.MulPlain(dense1Rot2, pt.Dense1Diag112)
-	dense1Block110Sum2 := ev.Add(dense1Block110Sum, dense1Prod112)
-	dense1Prod113 := ev.MulPlain(dense1Rot3, pt.Dense1Diag113)
-	dense1Block110Sum3 := ev.Add(dense1Block110Sum2, dense1Prod113)
-	dense1Prod114 := ev.MulPlain(dense1Rot4, pt.Dense1Diag114)
-	dense1Block110Sum4 := ev.Add(dense1Block110Sum3, dense1Prod114)
-	dense1Prod115 := ev.MulPlain(dense1Rot5, pt.Dense1Diag115)
-	dense1Block110Sum5 := ev.Add(dense1Block110Sum4, dense1Prod115)
-	dense1Prod116 := ev.MulPlain(dense1Rot6, pt.Dense1Diag116)
-	dense1Block110Sum6 := ev.Add(dense1Block110Sum5, dense1Prod116)
-	dense1Prod117 := ev.MulPlain(dense1Rot7, pt.Dense1Diag117)
-	dense1Block110Sum7 := ev.Add(dense1Block110Sum6, dense1Prod117)
-	dense1Prod118 := ev.MulPlain(dense1Rot8, pt.Dense1Diag118)
-	dense1Block110Sum8 := ev.Add(dense1Block110Sum7, dense1Prod118)
-	dense1Prod119 := ev.MulPlain(dense1Rot9, pt.Dense1Diag119)
-	dense1Block110Sum9 := ev.Add(dense1Block110Sum8, dense1Prod119)
-	dense1Block110Rot := ev.Rotate(dense1Block110Sum9, 110)
-	dense1Acc110 := ev.Add(dense1Acc100, dense1Block110Rot)
-	dense1Prod120 := ev.MulPlain(square1SqRelinRescaled, pt.Dense1Diag120)
-	dense1Prod121 := ev.MulPlain(dense1Rot1, pt.Dense1Diag121)
-	dense1Block120Sum := ev.Add(dense1Prod120, dense1Prod121)
-	dense1Prod122 := ev.MulPlain(dense1Rot2, pt.Dense1Diag122)
-	dense1Block120Sum2 := ev.Add(dense1Block120Sum, dense1Prod122)
-	dense1Prod123 := ev.MulPlain(dense1Rot3, pt.Dense1Diag123)
-	dense1Block120Sum3 := ev.Add(dense1Block120Sum2, dense1Prod123)
-	dense1Prod124 := ev.MulPlain(dense1Rot4, pt.Dense1Diag124)
-	dense1Block120Sum4 := ev.Add(dense1Block120Sum3, dense1Prod124)
-	dense1Prod125 := ev.MulPlain(dense1Rot5, pt.Dense1Diag125)
-	dense1Block120Sum5 := ev.Add(dense1Block120Sum4, dense1Prod125)
-	dense1Prod126 := ev.MulPlain(dense1Rot6, pt.Dense1Diag126)
-	dense1Block120Sum6 := ev.Add(dense1Block120Sum5, dense1Prod126)
-	dense1Prod127 := ev.MulPlain(dense1Rot7, pt.Dense1Diag127)
-	dense1Block120Sum7 := ev.Add(dense1Block120Sum6, dense1Prod127)
-	dense1Block120Rot := ev.Rotate(dense1Block120Sum7, 120)
-	dense1Acc120 := ev.Add(dense1Acc110, dense1Block120Rot)
-	dense1Fold128Rot := ev.Rotate(dense1Acc120, 128)
-	dense1Folded128 := ev.Add(dense1Acc120, dense1Fold128Rot)
+	dense1Block80Sum2 := ev.Add(dense1Block80Sum, dense1Prod88)
+	dense1Prod92 := ev.MulPlain(dense1Rot12, pt.Dense1Diag92)
+	dense1Block80Sum3 := ev.Add(dense1Block80Sum2, dense1Prod92)
+	dense1Block80Rot := ev.Rotate(dense1Block80Sum3, 80)
+	dense1Acc80 := ev.Add(dense1Acc64, dense1Block80Rot)
+	dense1Prod96 := ev.MulPlain(dense1Copies, pt.Dense1Diag96)
+	dense1Prod100 := ev.MulPlain(dense1Rot4, pt.Dense1Diag100)
+	dense1Block96Sum := ev.Add(dense1Prod96, dense1Prod100)
+	dense1Prod104 := ev.MulPlain(dense1Rot8, pt.Dense1Diag104)
+	dense1Block96Sum2 := ev.Add(dense1Block96Sum, dense1Prod104)
+	dense1Prod108 := ev.MulPlain(dense1Rot12, pt.Dense1Diag108)
+	dense1Block96Sum3 := ev.Add(dense1Block96Sum2, dense1Prod108)
+	dense1Block96Rot := ev.Rotate(dense1Block96Sum3, 96)
+	dense1Acc96 := ev.Add(dense1Acc80, dense1Block96Rot)
+	dense1Prod112 := ev.MulPlain(dense1Copies, pt.Dense1Diag112)
+	dense1Prod116 := ev.MulPlain(dense1Rot4, pt.Dense1Diag116)
+	dense1Block112Sum := ev.Add(dense1Prod112, dense1Prod116)
+	dense1Prod120 := ev.MulPlain(dense1Rot8, pt.Dense1Diag120)
+	dense1Block112Sum2 := ev.Add(dense1Block112Sum, dense1Prod120)
+	dense1Prod124 := ev.MulPlain(dense1Rot12, pt.Dense1Diag124)
+	dense1Block112Sum3 := ev.Add(dense1Block112Sum2, dense1Prod124)
+	dense1Block112Rot := ev.Rotate(dense1Block112Sum3, 112)
+	dense1Acc112 := ev.Add(dense1Acc96, dense1Block112Rot)
+	dense1Fold128Rot := ev.Rotate(dense1Acc112, 128)
+	dense1Folded128 := ev.Add(dense1Acc112, dense1Fold128Rot)
 	dense1Fold256Rot := ev.Rotate(dense1Folded128, 256)
 	dense1Folded256 := ev.Add(dense1Folded128, dense1Fold256Rot)
 	dense1Fold512Rot := ev.Rotate(dense1Folded256, 512)

@@ -18,7 +18,7 @@ var weightsBlob []byte
 
 // WeightsSHA256 is the SHA-256 of weights.bin, checked before any weight is read.
 // A change of weights shows in review as a change of this line.
-const WeightsSHA256 = "6ff420b17e486f10cc1eb85a19e80004a948e6dffa36eb27cde1a00e44482b6f"
+const WeightsSHA256 = "7c9f1c7cc5aba747b2c7c2fdb8d2c6bea8c88ed77333b1494c81695d3cd05901"
 
 // LoadWeights checks the embedded blob against WeightsSHA256 and parses it.
 func LoadWeights() (*runtime.Weights, error) {
