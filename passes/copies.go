@@ -207,7 +207,8 @@ func planCopies(entries []copyEntry, zero []bool, B, D int) (*copyPlan, error) {
 	}
 	// Each round adds one shift, or doubles the set with S + σ (the sums
 	// of a few shifts tile best, see coverResidues), whichever lowers the
-	// score most; for each residue of σ mod B, the smallest σ that fits.
+	// score most; for each residue of σ mod min(B, maxCoverPeriod) (all
+	// that the covers see), the smallest σ that fits.
 	for {
 		var bestAdd []int
 		bestScore := score
@@ -215,9 +216,10 @@ func planCopies(entries []copyEntry, zero []bool, B, D int) (*copyPlan, error) {
 			if n := len(shifts) + max(1, double*len(shifts)); n*len(live) > D {
 				continue // the copies would not fit
 			}
-			for rho := 1; rho < B; rho++ {
+			classes := min(B, maxCoverPeriod)
+			for rho := 1; rho < classes; rho++ {
 				var add []int
-				for sigma := rho; sigma < D; sigma += B {
+				for sigma := rho; sigma < D; sigma += classes {
 					add = []int{sigma}
 					if double == 1 {
 						add = add[:0]
@@ -303,12 +305,19 @@ func copyScore(n, h int) float64 {
 	return 8*float64(n-1+bsgs) + float64(h)
 }
 
+// maxCoverPeriod bounds the periods m of the covers coverResidues tries,
+// so that the search stays near B² steps per candidate at most: a greedy
+// cover of ℤ_m takes about m² steps, and the shifts are chosen from about
+// m candidates.
+const maxCoverPeriod = 128
+
 // coverResidues returns, in ascending order, a small set H of folded
 // diagonals such that every residue r with need[r] has a shift σ with
-// (r + σ) mod B in H. It tries, for each power of two m dividing B, the
-// periodic sets H = T + mℤ_B, where T covers the residues mod m with the
-// shifts mod m: a shift set such as {0, 1, 28, 29} tiles ℤ_8 with T = {0,
-// 2}, so H has B/4 diagonals, which a greedy cover of ℤ_B alone misses.
+// (r + σ) mod B in H. It tries, for each power of two m dividing B up to
+// maxCoverPeriod, the periodic sets H = T + mℤ_B, where T covers the
+// residues mod m with the shifts mod m: a shift set such as {0, 1, 28, 29}
+// tiles ℤ_8 with T = {0, 2}, so H has B/4 diagonals, which a greedy cover
+// of ℤ_B alone misses.
 // T is greedy (greedyCover: the diagonal that meets the most residues not
 // yet met, ties to the smallest); with thorough set, also the greedy
 // covers started from each diagonal and those that meet the smallest
@@ -316,7 +325,7 @@ func copyScore(n, h int) float64 {
 // smallest m.
 func coverResidues(need []bool, shifts []int, B int, thorough bool) []int {
 	var best []int
-	for m := 1; m <= B; m *= 2 {
+	for m := 1; m <= min(B, maxCoverPeriod); m *= 2 {
 		needM := make([]bool, m)
 		for r, n := range need {
 			if n {
