@@ -36,12 +36,12 @@ type copyPlan struct {
 	cover  map[int]int       // residue (c − t) mod B → the shift it is read through
 }
 
-// knownZeros returns which slots of the input of layers[len(layers)] (the
-// layer after the given ones) hold exactly zero in a period of D, whatever
-// matrix method each of the given layers takes, starting from an input
-// known to be zero at zero (nil: nothing known). It is nil when nothing is
-// known. The program's own input is never trusted to be zero anywhere (the
-// client pads it, but the evaluator cannot check that).
+// knownZeros returns which slots of the vector the given layers make, in
+// a period of D, hold exactly zero whatever matrix method each of them
+// takes, given the zero slots of their input (nil: nothing known); nil
+// when nothing is known. The program's own input is never trusted to be
+// zero anywhere (the client pads it, but the evaluator cannot check that),
+// so lower starts from nil.
 //
 // A dense or linear layer's output slot s is zero when the row it holds
 // is zero with a zero bias, or holds no row: with the block method of block
