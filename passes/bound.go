@@ -19,11 +19,12 @@ cheapest baby-step giant-step split of K over every baby-step count n1, in eithe
 n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and
 are priced as full rotations; or the roles of the two swapped); a blocked layer's sum of D/B shifted copies
 priced as the cheapest staging of hoisted sets (log2(D/B) single rotations at most); a sum of shifted copies of
-a layer's input, read by the products as their input, priced as one hoisted set of its nonzero shifts; one rescale per level at
-which it multiplies. Per ciphertext product one product with its relinearization and one rescale; per polynomial
-of degree d, ceil(log2 d) such products (each at most doubles the degree) and one rescale per level it consumes.
-A hoisted set of r rotations costs rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of
-4). Everything else (encoding, level drops, scalar products, bias additions) is free.`
+a layer's input, read by the products as their input, priced as one hoisted set of its nonzero shifts; one
+rescale per level at which it multiplies. Per ciphertext product one product with its relinearization and one
+rescale; per polynomial of degree d, ceil(log2 d) such products (each at most doubles the degree) and one
+rescale per level it consumes. A hoisted set of r rotations costs rot + (r-1)(hoisted4 - rot)/3 (fitted to one
+rotation and a hoisted set of 4). Everything else (encoding, level drops, scalar products, bias additions) is
+free.`
 
 // Bound is the lower bound of one program's evaluation: see LowerBound.
 type Bound struct {
@@ -79,6 +80,9 @@ type BoundLayer struct {
 //   - the fold of n = D/B copies: min over n = a·m of hoisted(a−1) plus the
 //     fold of m copies (rotate-and-sum by halves at most), at the level of
 //     the program's fold;
+//   - a sum of rotations of one layer input that the products read as
+//     their input (the copies method): hoisted(r) for its r nonzero
+//     shifts; the sum is then an input of its own for the splits above;
 //   - one rescale per distinct level of its plaintext products, and for
 //     every ciphertext product one product with relinearization and one
 //     rescale;

@@ -1,6 +1,7 @@
 package passes
 
 import (
+	"errors"
 	"fmt"
 	"slices"
 
@@ -183,16 +184,19 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 			rotations = hs.rotations + log2(D/B)
 		}
 		// Or read the entries from shifted copies of a sparse input
-		// (copies.go), when the zeros that needs are proven.
-		cp, err := planCopies(copyEntries(full, l.Out, D), b.zero, B, D)
-		switch {
-		case err == nil:
-			cs := bestSplit(cp.diags, D)
-			if useCopies(b.method, l.Name, rotations, len(diags), len(cp.shifts)-1+cs.rotations+log2(D/B), len(cp.diags)) {
-				diags, sp, block, copies = cp.diags, cs, B, cp
+		// (copies.go), when the zeros that needs are proven; not tried
+		// where the selection chose another method.
+		if m, chosen := b.method[l.Name]; !chosen || m == Copies {
+			cp, err := planCopies(copyEntries(full, l.Out, D), b.zero, B, D)
+			switch {
+			case err == nil:
+				cs := bestSplit(cp.diags, D)
+				if useCopies(b.method, l.Name, rotations, len(diags), len(cp.shifts)-1+cs.rotations+log2(D/B), len(cp.diags)) {
+					diags, sp, block, copies = cp.diags, cs, B, cp
+				}
+			case chosen || !errors.Is(err, errNoCopies):
+				return 0, fmt.Errorf("%s: %s: %w", l.Pos, l.Name, err)
 			}
-		case b.method[l.Name] == Copies:
-			return 0, fmt.Errorf("%s: %s: %w", l.Pos, l.Name, err)
 		}
 	} else if b.method[l.Name] == Copies {
 		return 0, fmt.Errorf("%s: %s: %w (the output is longer than half the period)", l.Pos, l.Name, errNoCopies)
