@@ -281,3 +281,40 @@ func TestCopiesDigits(t *testing.T) {
 	require.NoError(t, err)
 	requireApart(t, z, cp.shifts)
 }
+
+// The selection offers the copies method where the input's zeros are
+// proven, prices it from the segment lowered with what the layers before
+// it prove, and records the choice with its runner-up; with a ReLU
+// interpolant before the layer it is not offered.
+func TestSelectOffersCopies(t *testing.T) {
+	for i, c := range []struct {
+		act     ir.ActFunc
+		offered bool
+	}{{ir.Square, true}, {ir.ReLU, false}} {
+		t.Run(string(c.act), func(t *testing.T) {
+			g := convNet(uint64(60+i), []int{1, 16, 16}, conv(3, 3, 2, [4]int{}), act(c.act), &ir.Layer{Kind: ir.Flatten}, dense(6))
+			prog, st, _, err := Select(g, Options{}, DefaultProfile(), Latency)
+			require.NoError(t, err)
+			name := prog.Layers[len(prog.Layers)-1].Name
+			var ch *Choice
+			for k := range st.Report.Choices {
+				if st.Report.Choices[k].Decision == name+": method" {
+					ch = &st.Report.Choices[k]
+				}
+			}
+			require.NotNil(t, ch, "choices %v", st.Report.Choices)
+			offered := ch.Chosen == string(Copies) || strings.HasPrefix(ch.RunnerUp, string(Copies))
+			require.Equal(t, c.offered, offered, "%+v", *ch)
+			if ch.Chosen == string(Copies) {
+				require.Contains(t, prog.Layers[len(prog.Layers)-1].Kind, "shifted copies")
+				require.Less(t, ch.ChosenMS, ch.RunnerUpMS)
+			}
+			x := randomInput(7, g.Input.Size)
+			want, err := st.Model.Reference(x)
+			require.NoError(t, err)
+			got, err := prog.Simulate(x)
+			require.NoError(t, err)
+			require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
+		})
+	}
+}
