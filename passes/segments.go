@@ -82,7 +82,7 @@ func newSegmentSpace(pre *ir.Graph, degrees map[string][]DegreeOption, opts Opti
 
 // variants returns the segments starting at i in a layout of period D: a
 // linear segment whose output is shorter than the period comes with each
-// matrix method.
+// matrix method (the copies method only where lowering accepts it).
 func (sp *segmentSpace) variants(i, D int) []*segment {
 	var out []*segment
 	for _, s := range sp.starts[i] {
