@@ -128,6 +128,9 @@ func (b *builder) blockMatVec(l *ir.Layer, xs []ir.ValueID, info *ir.LayerInfo, 
 	if b.naive {
 		return b.naiveBlockMatVec(l, xs, info, entries)
 	}
+	if b.method[l.Name] == Copies {
+		return nil, fmt.Errorf("%s: %s: %w (the layer spans several ciphertexts)", l.Pos, l.Name, errNoCopies)
+	}
 	D := b.p.Period
 	in, out := chunks(l.In, D), chunks(l.Out, D)
 	if len(xs) != in {

@@ -15,24 +15,24 @@ import (
 const BoundDefinition = `lower bound: the work that the compiled program's layout cannot avoid, at the program's own levels, priced with
 primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its layout (of the
 blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions, or |K| terms of a dot
-where that is cheaper; rotations as the
-cheapest baby-step giant-step split of K over every baby-step count n1, in either orientation (baby steps k mod
-n1 rotate the input ciphertext and are priced as one hoisted set, giant steps k div n1 rotate distinct sums and
-are priced as full rotations, or as the terms of one rotate-sum where a sum has two or more and that is cheaper;
+where that is cheaper; rotations as the cheapest baby-step giant-step split of K over every baby-step count n1,
+in either orientation (baby steps k mod n1 rotate the input ciphertext and are priced as one hoisted set, giant
+steps k div n1 rotate distinct sums and are priced as full rotations, or as the terms of one rotate-sum where a sum has two or more and that is cheaper;
 or the roles of the two swapped); a blocked layer's sum of P/B shifted copies (P the period D, or the shorter
 period with which its input repeats, read off its folds) priced as the cheapest staging of hoisted sets
-(log2(P/B) single rotations at most); one rescale per level at which it multiplies. Per ciphertext product one
-product with its relinearization and one rescale; per polynomial of degree d, ceil(log2 d) such products (each
-at most doubles the degree) and one rescale per level it consumes. A hoisted set of r rotations costs
-rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of 4). Everything else (encoding, level
-drops, scalar products, bias additions) is free.`
+(log2(P/B) single rotations at most); a sum of shifted copies of a layer's input, read by the products as their
+input, priced as one hoisted set of its nonzero shifts; one rescale per level at which it multiplies. Per
+ciphertext product one product with its relinearization and one rescale; per polynomial of degree d,
+ceil(log2 d) such products (each at most doubles the degree) and one rescale per level it consumes. A hoisted
+set of r rotations costs rot + (r-1)(hoisted4 - rot)/3 (fitted to one rotation and a hoisted set of 4).
+Everything else (encoding, level drops, scalar products, bias additions) is free.`
 
 // Bound is the lower bound of one program's evaluation: see LowerBound.
 type Bound struct {
 	Layers []BoundLayer
 	// Totals over the layers.
 	PlainMuls   int
-	KeySwitches int // rotations of the cheapest splits and folds, and relinearizations
+	KeySwitches int // rotations of the cheapest splits, folds and copies, and relinearizations
 	Relins      int
 	Rescales    int
 	MS          float64
@@ -47,11 +47,12 @@ type BoundLayer struct {
 	// sets, GiantSteps rotate sums. Transposed says the split hoists the
 	// input rotations by multiples of Split and rotates the sums by the
 	// remainders. Folds are the rotations of the cheapest staging of a
-	// blocked layer's sum.
-	Split, BabySteps, GiantSteps, Folds int
-	Transposed                          bool
-	Relins, Rescales                    int
-	MS                                  float64
+	// blocked layer's sum. Copies are the rotations of the input whose
+	// sum the products read (the copies method).
+	Split, BabySteps, GiantSteps, Folds, Copies int
+	Transposed                                  bool
+	Relins, Rescales                            int
+	MS                                          float64
 }
 
 // LowerBound is the cost of the work that a leveled program's layout
@@ -80,6 +81,9 @@ type BoundLayer struct {
 //   - the fold of n = D/B copies: min over n = a·m of hoisted(a−1) plus the
 //     fold of m copies (rotate-and-sum by halves at most), at the level of
 //     the program's fold;
+//   - a sum of rotations of one layer input that the products read as
+//     their input (the copies method): hoisted(r) for its r nonzero
+//     shifts; the sum is then an input of its own for the splits above;
 //   - one rescale per distinct level of its plaintext products, and for
 //     every ciphertext product one product with relinearization and one
 //     rescale;
@@ -127,6 +131,10 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 	b := &Bound{}
 	for li, info := range p.Layers {
 		bl := BoundLayer{Layer: info.Name}
+		// copySum[v]: v adds up rotations of one layer input by these
+		// offsets (0 for the input itself); v is then an input of its own.
+		copySum := map[ir.ValueID][]int{}
+		copyBase := map[ir.ValueID]ir.ValueID{}
 		type product struct {
 			base ir.ValueID
 			k    int
@@ -183,6 +191,33 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 			case ir.OpRescale, ir.OpDropLevel, ir.OpRelinearize:
 				if r, ok := pre[op.Args[0]]; ok {
 					pre[op.Results[0]] = r
+				}
+			case ir.OpAdd:
+				// A sum of rotations of one input: shifted copies.
+				var offs []int
+				var base ir.ValueID
+				ok := true
+				for n, a := range op.Args {
+					var bs ir.ValueID
+					var os []int
+					if c, isSum := copySum[a]; isSum {
+						bs, os = copyBase[a], c
+					} else if r, isRot := origin(a, li); isRot {
+						bs, os = r.base, []int{r.off}
+					} else {
+						ok = false
+						break
+					}
+					if n > 0 && bs != base {
+						ok = false
+						break
+					}
+					base, offs = bs, append(offs, os...)
+				}
+				if ok {
+					v := op.Results[0]
+					copySum[v], copyBase[v] = offs, base
+					pre[v] = rotated{base: v}
 				}
 			case ir.OpMulPlain, ir.OpDot:
 				// Each product (a dot's terms) multiplies one diagonal.
@@ -271,6 +306,13 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 				}
 			}
 			bl.MS += best
+			for _, base := range baseOrder {
+				if offs, ok := copySum[base]; ok {
+					r := distinct(offs, func(d int) int { return d })
+					bl.Copies += r
+					bl.MS += hoistedMS(prof, logN, level(base), r)
+				}
+			}
 			slices.Sort(prodLevels)
 			prodLevels = slices.Compact(prodLevels)
 			bl.Rescales += len(prodLevels)
@@ -331,7 +373,7 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 		}
 		b.Layers = append(b.Layers, bl)
 		b.PlainMuls += bl.Diagonals
-		b.KeySwitches += bl.BabySteps + bl.GiantSteps + bl.Folds + bl.Relins
+		b.KeySwitches += bl.BabySteps + bl.GiantSteps + bl.Folds + bl.Copies + bl.Relins
 		b.Relins += bl.Relins
 		b.Rescales += bl.Rescales
 		b.MS += bl.MS
@@ -400,6 +442,9 @@ func (b *Bound) String() string {
 		}
 		if l.Folds > 0 {
 			s += fmt.Sprintf(", %d fold rotations", l.Folds)
+		}
+		if l.Copies > 0 {
+			s += fmt.Sprintf(", %d copy rotations", l.Copies)
 		}
 		if l.Relins > 0 {
 			s += fmt.Sprintf(", %d relinearizations", l.Relins)

@@ -1,6 +1,7 @@
 package passes
 
 import (
+	"errors"
 	"fmt"
 	"slices"
 
@@ -37,10 +38,17 @@ func lower(s *State) error {
 	}
 	xs := inputValues(p, identifier(g.Input.Name))
 	repeat := 0 // x repeats with this period (0: not known to)
+	// zero: the slots of the next layer's input known to be exactly zero
+	// (knownZeros); for the program's input, what the selection's segment
+	// was told of the layers before it, nothing otherwise.
+	zero := s.inputZeros
+	if pitch > 0 {
+		zero = nil
+	}
 	for i, l := range g.Layers {
 		info := &ir.LayerInfo{Name: l.Name, Pos: l.Pos}
 		p.Layers = append(p.Layers, info)
-		b := &builder{p: p, layer: i, prefix: identifier(l.Name), method: s.Opts.Method}
+		b := &builder{p: p, layer: i, prefix: identifier(l.Name), method: s.Opts.Method, zero: zero}
 		b.naive = s.Opts.Naive
 		if i == 0 {
 			b.pitch = pitch
@@ -48,6 +56,7 @@ func lower(s *State) error {
 		if !b.naive {
 			b.repeat = repeat
 		}
+		zero = knownZeros(zero, []*ir.Layer{l}, p.Period, func(l *ir.Layer) bool { return zeroAtZero(l.Act) })
 		if len(xs) > 1 || chunks(l.Out, p.Period) > 1 {
 			var err error
 			if xs, err = b.chunked(l, xs, info); err != nil {
@@ -95,6 +104,7 @@ type builder struct {
 	// repeat (a blocked layer's output, through activations), 0 if none;
 	// outRepeat the output's, once lowered.
 	repeat, outRepeat int
+	zero              []bool // the input's slots known to be exactly zero (knownZeros); nil: none
 }
 
 func (b *builder) op(kind ir.OpKind, name string, args ...ir.ValueID) ir.ValueID {
@@ -179,16 +189,39 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 	// An input that repeats with period P (a blocked layer's output) needs
 	// only the P/B blocks of one period summed, in log2(P/B) steps: the
 	// product repeats with period P too (periodicDiags).
-	block, span := D, D
+	block, span, full := D, D, diags
+	var copies *copyPlan
 	if B := nextPow2(l.Out); B < D {
 		h, P := blockDiags(diags, l.Out, B, D), D
 		if r := b.repeat; l.Kind == ir.Dense && r > 0 && r < D && r%B == 0 && l.In <= r {
 			h, P = periodicDiags(l.Weights, l.In, B, r, D), r
 		}
 		hs := bestSplit(h, D)
+		rotations := sp.rotations
 		if useBlocks(b.method, l.Name, sp.rotations, hs.rotations+log2(P/B)) {
 			diags, sp, block, span = h, hs, B, P
+			rotations = hs.rotations + log2(P/B)
 		}
+		// Or read the entries from shifted copies of a sparse input
+		// (copies.go), when the zeros that needs are proven; not tried
+		// where the selection chose another method.
+		if m, chosen := b.method[l.Name]; !chosen || m == Copies {
+			cp, err := planCopies(copyEntries(full, l.Out, D), b.zero, B, D)
+			switch {
+			case err == nil:
+				cs := bestSplit(cp.diags, D)
+				if useCopies(b.method, l.Name, rotations, len(diags), len(cp.shifts)-1+cs.rotations+log2(D/B), len(cp.diags)) {
+					diags, sp, block, span, copies = cp.diags, cs, B, D, cp
+				}
+			case chosen || !errors.Is(err, errNoCopies):
+				return 0, fmt.Errorf("%s: %s: %w", l.Pos, l.Name, err)
+			}
+		}
+	} else if b.method[l.Name] == Copies {
+		return 0, fmt.Errorf("%s: %s: %w (the output is longer than half the period)", l.Pos, l.Name, errNoCopies)
+	}
+	if copies != nil {
+		x = b.sumCopies(x, copies.shifts, info)
 	}
 	n1 := sp.n1
 	info.BabySteps, info.GiantSteps = n1, (D+n1-1)/n1
@@ -275,6 +308,8 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 		info.Rotations++
 	}
 	switch {
+	case copies != nil:
+		info.Kind += fmt.Sprintf(" (in blocks of %d, %d shifted copies, %d diagonals)", block, len(copies.shifts), len(diags))
 	case span < D:
 		info.Kind += fmt.Sprintf(" (in blocks of %d, over the input's period %d)", block, span)
 	case block < D:
@@ -296,6 +331,50 @@ func (b *builder) matVec(l *ir.Layer, diags map[int][]float64, x ir.ValueID, inf
 			&ir.Const{Name: l.Name + ".bias", Kind: ir.Vector, Data: bias})
 	}
 	return acc, nil
+}
+
+// copyEntries lists the nonzero entries of the matrix whose diagonals
+// (diag_K[t] = W[t][(t+K) mod D]) are given, by diagonal then row.
+func copyEntries(diags map[int][]float64, out, D int) []copyEntry {
+	ks := make([]int, 0, len(diags))
+	for k := range diags {
+		ks = append(ks, k)
+	}
+	slices.Sort(ks)
+	var es []copyEntry
+	for _, k := range ks {
+		for t, v := range diags[k][:out] {
+			if v != 0 {
+				es = append(es, copyEntry{t, (t + k) % D, v})
+			}
+		}
+	}
+	return es
+}
+
+// sumCopies emits x̃ = Σ_{σ∈S} rot_{−σ}(x), the shifts in one hoisted set.
+func (b *builder) sumCopies(x ir.ValueID, shifts []int, info *ir.LayerInfo) ir.ValueID {
+	D := b.p.Period
+	op := &ir.Op{Kind: ir.OpRotHoisted, Args: []ir.ValueID{x}, Const: -1, Layer: b.layer}
+	for _, s := range shifts[1:] {
+		step := ((-s)%D + D) % D
+		op.Steps = append(op.Steps, step)
+		op.Results = append(op.Results, b.p.NewValue(fmt.Sprintf("%sCopy%d", b.prefix, step), ir.Cipher, b.layer))
+	}
+	b.p.Ops = append(b.p.Ops, op)
+	info.Rotations += len(op.Steps)
+	if len(op.Steps) > 1 {
+		info.Hoisted += len(op.Steps)
+	}
+	sum := x
+	for i, r := range op.Results {
+		name := "Copies"
+		if i < len(op.Results)-1 {
+			name = fmt.Sprintf("Copies%d", i+2)
+		}
+		sum = b.op(ir.OpAdd, name, sum, r)
+	}
+	return sum
 }
 
 func (b *builder) rotate(v ir.ValueID, k int, name string) ir.ValueID {

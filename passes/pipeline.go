@@ -137,6 +137,10 @@ type State struct {
 	Prog   *ir.Program
 	Opts   Options
 	Report *Report
+	// inputZeros marks the slots of the program's input known to be
+	// exactly zero: set by the selection when it lowers a segment that
+	// reads what earlier layers made (knownZeros); nil otherwise.
+	inputZeros []bool
 }
 
 func (s *State) note(format string, args ...any) {

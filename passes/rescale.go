@@ -3,9 +3,12 @@ package passes
 import "github.com/lanthorn/lanthorn/ir"
 
 // placeRescale rescales a value once its scale carries two factors (a
-// product) and it is about to be multiplied again, fed to a polynomial or
-// returned. Sums, rotations and bias additions happen before the rescale,
-// so a dense layer rescales once, after its products are summed.
+// product) and it is about to be multiplied again, fed to a polynomial,
+// returned, or rotated in a hoisted set (a layer's input: its rotations
+// are cheaper a level down, and each rotated copy would otherwise need a
+// rescale of its own). Sums, other rotations and bias additions happen
+// before the rescale, so a dense layer rescales once, after its products
+// are summed.
 func placeRescale(s *State) error {
 	p := s.Prog
 	factors := make([]int, len(p.Values))
@@ -52,7 +55,7 @@ func placeRescale(s *State) error {
 func needsRescale(p *ir.Program, v ir.ValueID) bool {
 	for _, u := range uses(p, v) {
 		switch u.Kind {
-		case ir.OpMulPlain, ir.OpMul, ir.OpPoly, ir.OpOutput:
+		case ir.OpMulPlain, ir.OpMul, ir.OpPoly, ir.OpOutput, ir.OpRotHoisted:
 			return true
 		}
 	}

@@ -1,6 +1,7 @@
 package passes
 
 import (
+	"errors"
 	"fmt"
 	"slices"
 
@@ -81,13 +82,19 @@ func newSegmentSpace(pre *ir.Graph, degrees map[string][]DegreeOption, opts Opti
 
 // variants returns the segments starting at i in a layout of period D: a
 // linear segment whose output is shorter than the period comes with each
-// matrix method.
+// matrix method (the copies method only where lowering accepts it).
 func (sp *segmentSpace) variants(i, D int) []*segment {
 	var out []*segment
 	for _, s := range sp.starts[i] {
 		if s.degree == 0 && mergeable(sp.layers[s.from]) && nextPow2(s.out) < D {
 			for _, m := range []Method{BSGS, Blocks} {
 				out = append(out, sp.withMethod(s, m))
+			}
+			// The copies method where the input's zeros let it apply.
+			if c := sp.withMethod(s, Copies); sp.zerosBefore(s.from, D) != nil {
+				if _, err := sp.lower(c, D); !errors.Is(err, errNoCopies) {
+					out = append(out, c)
+				}
 			}
 			continue
 		}
@@ -112,6 +119,26 @@ func (sp *segmentSpace) withMethod(s *segment, m Method) *segment {
 type methodKey struct {
 	s *segment
 	m Method
+}
+
+// zerosBefore is what knownZeros proves of the input of layer i at period
+// D from the layers before it, whatever variants they take: an activation
+// keeps the zeros only if it and every degree the selection may give it
+// map zero to zero.
+func (sp *segmentSpace) zerosBefore(i, D int) []bool {
+	return knownZeros(nil, sp.layers[:i], D, func(l *ir.Layer) bool {
+		if !zeroAtZero(l.Act) {
+			return false
+		}
+		for _, o := range sp.degrees[l.Name] {
+			a := *l.Act
+			a.Coeffs, a.Basis = o.Coeffs, ir.Chebyshev
+			if !zeroAtZero(&a) {
+				return false
+			}
+		}
+		return true
+	})
 }
 
 // lower lowers the segment alone at period D, through the program passes
@@ -141,6 +168,7 @@ func (sp *segmentSpace) lower(s *segment, D int) (*segProgram, error) {
 	g := &ir.Graph{Name: "segment", SpecFile: "segment", Input: ir.Input{Name: "x", Size: max(D, layers[0].In)}, OutputName: "y", Layers: layers, Pin: sp.pin}
 	st := &State{Source: g, Model: g, Graph: cloneGraph(g), Opts: sp.opts, Report: &Report{Dumps: map[string]string{}}}
 	st.Opts.KeepApart, st.Opts.Method = nil, nil
+	st.inputZeros = sp.zerosBefore(s.from, D)
 	if s.method != "" {
 		st.Opts.Method = map[string]Method{s.name: s.method}
 	}

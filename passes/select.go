@@ -79,8 +79,8 @@ type Choice struct {
 // (one level, more diagonals) or kept apart (a level each, fewer
 // rotations), the degree of each activation declared with a tolerance
 // (fewer levels, or a closer fit), and each linear layer's matrix method
-// (baby-step giant-step over the whole period, or blocks for a short
-// output). The segments (a layer, or a merged run) are lowered once each
+// (baby-step giant-step over the whole period, blocks for a short output,
+// or blocks over shifted copies of a sparse input whose zeros are proven). The segments (a layer, or a merged run) are lowered once each
 // and priced with the profile at the levels they would run at; for every
 // layout period and depth, the params pass sizes the ring degree and chain,
 // and dynamic programming over (layer, levels consumed) finds the cheapest

@@ -1,8 +1,10 @@
 package passes
 
 import (
+	"errors"
 	"flag"
 	"fmt"
+	"maps"
 	"math"
 	"path/filepath"
 	"strings"
@@ -100,27 +102,38 @@ func bruteForce(t *testing.T, g *ir.Graph, prof *Profile, obj Objective) (best f
 		if err != nil {
 			return // no ring holds it
 		}
+		// Each such layer with each method: the copies method where
+		// lowering accepts it (its input's zeros proven).
 		var lin []string
+		var methods [][]Method
 		for _, l := range s0.Graph.Layers {
 			if mergeable(l) && nextPow2(l.Out) < s0.Prog.Period {
 				lin = append(lin, l.Name)
+				ms := []Method{BSGS, Blocks}
+				_, _, err := Compile(g, Options{KeepApart: apart, Degree: d, Method: map[string]Method{l.Name: Copies}})
+				if !errors.Is(err, errNoCopies) {
+					ms = append(ms, Copies)
+				}
+				methods = append(methods, ms)
 			}
 		}
-		for mask := 0; mask < 1<<len(lin); mask++ {
-			m := map[string]Method{}
-			for i, n := range lin {
-				m[n] = BSGS
-				if mask&(1<<i) != 0 {
-					m[n] = Blocks
+		var each func(i int, m map[string]Method)
+		each = func(i int, m map[string]Method) {
+			if i < len(lin) {
+				for _, k := range methods[i] {
+					m[lin[i]] = k
+					each(i+1, m)
 				}
+				return
 			}
-			_, s, err := Compile(g, Options{KeepApart: apart, Degree: d, Method: m})
+			_, s, err := Compile(g, Options{KeepApart: apart, Degree: d, Method: maps.Clone(m)})
 			if err != nil {
-				continue
+				return
 			}
 			count++
 			best = math.Min(best, cost(s))
 		}
+		each(0, map[string]Method{})
 	}
 	for mask := 0; mask < 1<<len(names); mask++ {
 		apart := map[string]bool{}

@@ -40,133 +40,37 @@ type Plaintexts struct {
 	Conv1Diag87   *runtime.Plaintext // level 5, scale q5
 	Conv1Bias     *runtime.Plaintext // level 5, scale 2^33·q5
 	Dense1Diag0   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag1   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag2   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag3   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag4   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag5   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag6   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag7   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag8   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag9   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag10  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag11  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag12  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag13  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag14  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag15  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag16  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag17  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag18  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag19  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag20  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag21  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag22  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag23  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag24  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag25  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag26  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag27  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag28  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag29  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag30  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag31  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag32  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag33  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag34  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag35  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag36  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag37  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag38  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag39  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag40  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag41  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag42  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag43  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag44  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag45  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag46  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag47  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag48  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag49  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag50  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag51  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag52  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag53  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag54  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag55  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag56  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag57  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag58  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag59  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag60  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag61  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag62  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag63  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag64  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag65  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag66  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag67  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag68  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag69  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag70  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag71  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag72  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag73  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag74  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag75  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag76  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag77  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag78  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag79  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag80  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag81  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag82  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag83  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag84  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag85  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag86  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag87  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag88  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag89  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag90  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag91  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag92  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag93  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag94  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag95  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag96  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag97  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag98  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag99  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag100 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag101 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag102 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag103 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag104 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag105 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag106 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag107 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag108 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag109 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag110 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag111 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag112 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag113 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag114 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag115 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag116 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag117 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag118 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag119 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag120 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag121 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag122 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag123 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Diag124 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag125 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag126 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag127 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
 	Dense1Bias    *runtime.Plaintext // level 3, scale 2^33·q3
 	Dense2Diag0   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
 	Dense2Diag1   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
@@ -229,133 +133,37 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Conv1Diag87 = enc.Multiplier("conv1.diag87", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 4096)
 	pt.Conv1Bias = enc.Plaintext("conv1.bias", 5, runtime.Scale{Pow2: 33, Num: []int{5}}, 4096)
 	pt.Dense1Diag0 = enc.Multiplier("dense1.diag0", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag1 = enc.Multiplier("dense1.diag1", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag2 = enc.Multiplier("dense1.diag2", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag3 = enc.Multiplier("dense1.diag3", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag4 = enc.Multiplier("dense1.diag4", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag5 = enc.Multiplier("dense1.diag5", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag6 = enc.Multiplier("dense1.diag6", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag7 = enc.Multiplier("dense1.diag7", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag8 = enc.Multiplier("dense1.diag8", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag9 = enc.Multiplier("dense1.diag9", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag10 = enc.Multiplier("dense1.diag10", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag11 = enc.Multiplier("dense1.diag11", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag12 = enc.Multiplier("dense1.diag12", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag13 = enc.Multiplier("dense1.diag13", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag14 = enc.Multiplier("dense1.diag14", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag15 = enc.Multiplier("dense1.diag15", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag16 = enc.Multiplier("dense1.diag16", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag17 = enc.Multiplier("dense1.diag17", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag18 = enc.Multiplier("dense1.diag18", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag19 = enc.Multiplier("dense1.diag19", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag20 = enc.Multiplier("dense1.diag20", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag21 = enc.Multiplier("dense1.diag21", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag22 = enc.Multiplier("dense1.diag22", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag23 = enc.Multiplier("dense1.diag23", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag24 = enc.Multiplier("dense1.diag24", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag25 = enc.Multiplier("dense1.diag25", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag26 = enc.Multiplier("dense1.diag26", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag27 = enc.Multiplier("dense1.diag27", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag28 = enc.Multiplier("dense1.diag28", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag29 = enc.Multiplier("dense1.diag29", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag30 = enc.Multiplier("dense1.diag30", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag31 = enc.Multiplier("dense1.diag31", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag32 = enc.Multiplier("dense1.diag32", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag33 = enc.Multiplier("dense1.diag33", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag34 = enc.Multiplier("dense1.diag34", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag35 = enc.Multiplier("dense1.diag35", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag36 = enc.Multiplier("dense1.diag36", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag37 = enc.Multiplier("dense1.diag37", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag38 = enc.Multiplier("dense1.diag38", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag39 = enc.Multiplier("dense1.diag39", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag40 = enc.Multiplier("dense1.diag40", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag41 = enc.Multiplier("dense1.diag41", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag42 = enc.Multiplier("dense1.diag42", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag43 = enc.Multiplier("dense1.diag43", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag44 = enc.Multiplier("dense1.diag44", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag45 = enc.Multiplier("dense1.diag45", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag46 = enc.Multiplier("dense1.diag46", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag47 = enc.Multiplier("dense1.diag47", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag48 = enc.Multiplier("dense1.diag48", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag49 = enc.Multiplier("dense1.diag49", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag50 = enc.Multiplier("dense1.diag50", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag51 = enc.Multiplier("dense1.diag51", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag52 = enc.Multiplier("dense1.diag52", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag53 = enc.Multiplier("dense1.diag53", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag54 = enc.Multiplier("dense1.diag54", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag55 = enc.Multiplier("dense1.diag55", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag56 = enc.Multiplier("dense1.diag56", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag57 = enc.Multiplier("dense1.diag57", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag58 = enc.Multiplier("dense1.diag58", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag59 = enc.Multiplier("dense1.diag59", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag60 = enc.Multiplier("dense1.diag60", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag61 = enc.Multiplier("dense1.diag61", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag62 = enc.Multiplier("dense1.diag62", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag63 = enc.Multiplier("dense1.diag63", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag64 = enc.Multiplier("dense1.diag64", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag65 = enc.Multiplier("dense1.diag65", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag66 = enc.Multiplier("dense1.diag66", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag67 = enc.Multiplier("dense1.diag67", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag68 = enc.Multiplier("dense1.diag68", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag69 = enc.Multiplier("dense1.diag69", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag70 = enc.Multiplier("dense1.diag70", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag71 = enc.Multiplier("dense1.diag71", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag72 = enc.Multiplier("dense1.diag72", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag73 = enc.Multiplier("dense1.diag73", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag74 = enc.Multiplier("dense1.diag74", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag75 = enc.Multiplier("dense1.diag75", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag76 = enc.Multiplier("dense1.diag76", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag77 = enc.Multiplier("dense1.diag77", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag78 = enc.Multiplier("dense1.diag78", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag79 = enc.Multiplier("dense1.diag79", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag80 = enc.Multiplier("dense1.diag80", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag81 = enc.Multiplier("dense1.diag81", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag82 = enc.Multiplier("dense1.diag82", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag83 = enc.Multiplier("dense1.diag83", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag84 = enc.Multiplier("dense1.diag84", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag85 = enc.Multiplier("dense1.diag85", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag86 = enc.Multiplier("dense1.diag86", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag87 = enc.Multiplier("dense1.diag87", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag88 = enc.Multiplier("dense1.diag88", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag89 = enc.Multiplier("dense1.diag89", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag90 = enc.Multiplier("dense1.diag90", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag91 = enc.Multiplier("dense1.diag91", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag92 = enc.Multiplier("dense1.diag92", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag93 = enc.Multiplier("dense1.diag93", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag94 = enc.Multiplier("dense1.diag94", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag95 = enc.Multiplier("dense1.diag95", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag96 = enc.Multiplier("dense1.diag96", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag97 = enc.Multiplier("dense1.diag97", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag98 = enc.Multiplier("dense1.diag98", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag99 = enc.Multiplier("dense1.diag99", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag100 = enc.Multiplier("dense1.diag100", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag101 = enc.Multiplier("dense1.diag101", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag102 = enc.Multiplier("dense1.diag102", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag103 = enc.Multiplier("dense1.diag103", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag104 = enc.Multiplier("dense1.diag104", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag105 = enc.Multiplier("dense1.diag105", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag106 = enc.Multiplier("dense1.diag106", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag107 = enc.Multiplier("dense1.diag107", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag108 = enc.Multiplier("dense1.diag108", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag109 = enc.Multiplier("dense1.diag109", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag110 = enc.Multiplier("dense1.diag110", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag111 = enc.Multiplier("dense1.diag111", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag112 = enc.Multiplier("dense1.diag112", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag113 = enc.Multiplier("dense1.diag113", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag114 = enc.Multiplier("dense1.diag114", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag115 = enc.Multiplier("dense1.diag115", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag116 = enc.Multiplier("dense1.diag116", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag117 = enc.Multiplier("dense1.diag117", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag118 = enc.Multiplier("dense1.diag118", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag119 = enc.Multiplier("dense1.diag119", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag120 = enc.Multiplier("dense1.diag120", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag121 = enc.Multiplier("dense1.diag121", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag122 = enc.Multiplier("dense1.diag122", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag123 = enc.Multiplier("dense1.diag123", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Diag124 = enc.Multiplier("dense1.diag124", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag125 = enc.Multiplier("dense1.diag125", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag126 = enc.Multiplier("dense1.diag126", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag127 = enc.Multiplier("dense1.diag127", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
 	pt.Dense1Bias = enc.Plaintext("dense1.bias", 3, runtime.Scale{Pow2: 33, Num: []int{3}}, 4096)
 	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
 	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
@@ -430,67 +238,52 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	square1SqRelin := ev.Relinearize(square1Sq)
 	square1SqRelinRescaled := ev.Rescale(square1SqRelin)
 
-	// digits.yaml:31:5 dense1: dense 3920→100 (in blocks of 128) · level 3→2 · 26 rotations (9 hoisted) · baby-step giant-step 10×410 · 128 plaintext multiplications · 1 rescale
-	square1SqRelinRescaledHoisted := ev.RotateHoisted(square1SqRelinRescaled, 1, 2, 3, 4, 5, 6, 7, 8, 9)
-	dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9 := square1SqRelinRescaledHoisted[0], square1SqRelinRescaledHoisted[1], square1SqRelinRescaledHoisted[2], square1SqRelinRescaledHoisted[3], square1SqRelinRescaledHoisted[4], square1SqRelinRescaledHoisted[5], square1SqRelinRescaledHoisted[6], square1SqRelinRescaledHoisted[7], square1SqRelinRescaledHoisted[8]
-	dense1Block0Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag0, pt.Dense1Diag1, pt.Dense1Diag2, pt.Dense1Diag3, pt.Dense1Diag4, pt.Dense1Diag5, pt.Dense1Diag6, pt.Dense1Diag7, pt.Dense1Diag8, pt.Dense1Diag9},
+	// digits.yaml:31:5 dense1: dense 3920→100 (in blocks of 128, 4 shifted copies, 32 diagonals) · level 3→2 · 18 rotations (6 hoisted) · baby-step giant-step 16×256 · 32 plaintext multiplications · 1 rescale
+	square1SqRelinRescaledHoisted := ev.RotateHoisted(square1SqRelinRescaled, 4095, 254, 253)
+	dense1Copy4095, dense1Copy254, dense1Copy253 := square1SqRelinRescaledHoisted[0], square1SqRelinRescaledHoisted[1], square1SqRelinRescaledHoisted[2]
+	dense1Copies2 := ev.Add(square1SqRelinRescaled, dense1Copy4095)
+	dense1Copies3 := ev.Add(dense1Copies2, dense1Copy254)
+	dense1Copies := ev.Add(dense1Copies3, dense1Copy253)
+	dense1CopiesHoisted := ev.RotateHoisted(dense1Copies, 4, 8, 12)
+	dense1Rot4, dense1Rot8, dense1Rot12 := dense1CopiesHoisted[0], dense1CopiesHoisted[1], dense1CopiesHoisted[2]
+	dense1Block0Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag0, pt.Dense1Diag4, pt.Dense1Diag8, pt.Dense1Diag12},
 	)
-	dense1Block10Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag10, pt.Dense1Diag11, pt.Dense1Diag12, pt.Dense1Diag13, pt.Dense1Diag14, pt.Dense1Diag15, pt.Dense1Diag16, pt.Dense1Diag17, pt.Dense1Diag18, pt.Dense1Diag19},
+	dense1Block16Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag16, pt.Dense1Diag20, pt.Dense1Diag24, pt.Dense1Diag28},
 	)
-	dense1Block20Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag20, pt.Dense1Diag21, pt.Dense1Diag22, pt.Dense1Diag23, pt.Dense1Diag24, pt.Dense1Diag25, pt.Dense1Diag26, pt.Dense1Diag27, pt.Dense1Diag28, pt.Dense1Diag29},
+	dense1Block32Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag32, pt.Dense1Diag36, pt.Dense1Diag40, pt.Dense1Diag44},
 	)
-	dense1Block30Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag30, pt.Dense1Diag31, pt.Dense1Diag32, pt.Dense1Diag33, pt.Dense1Diag34, pt.Dense1Diag35, pt.Dense1Diag36, pt.Dense1Diag37, pt.Dense1Diag38, pt.Dense1Diag39},
+	dense1Block48Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag48, pt.Dense1Diag52, pt.Dense1Diag56, pt.Dense1Diag60},
 	)
-	dense1Block40Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag40, pt.Dense1Diag41, pt.Dense1Diag42, pt.Dense1Diag43, pt.Dense1Diag44, pt.Dense1Diag45, pt.Dense1Diag46, pt.Dense1Diag47, pt.Dense1Diag48, pt.Dense1Diag49},
+	dense1Block64Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag64, pt.Dense1Diag68, pt.Dense1Diag72, pt.Dense1Diag76},
 	)
-	dense1Block50Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag50, pt.Dense1Diag51, pt.Dense1Diag52, pt.Dense1Diag53, pt.Dense1Diag54, pt.Dense1Diag55, pt.Dense1Diag56, pt.Dense1Diag57, pt.Dense1Diag58, pt.Dense1Diag59},
+	dense1Block80Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag80, pt.Dense1Diag84, pt.Dense1Diag88, pt.Dense1Diag92},
 	)
-	dense1Block60Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag60, pt.Dense1Diag61, pt.Dense1Diag62, pt.Dense1Diag63, pt.Dense1Diag64, pt.Dense1Diag65, pt.Dense1Diag66, pt.Dense1Diag67, pt.Dense1Diag68, pt.Dense1Diag69},
+	dense1Block96Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag96, pt.Dense1Diag100, pt.Dense1Diag104, pt.Dense1Diag108},
 	)
-	dense1Block70Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag70, pt.Dense1Diag71, pt.Dense1Diag72, pt.Dense1Diag73, pt.Dense1Diag74, pt.Dense1Diag75, pt.Dense1Diag76, pt.Dense1Diag77, pt.Dense1Diag78, pt.Dense1Diag79},
+	dense1Block112Sum3 := ev.DotPlain(
+		[]*runtime.Ciphertext{dense1Copies, dense1Rot4, dense1Rot8, dense1Rot12},
+		[]*runtime.Plaintext{pt.Dense1Diag112, pt.Dense1Diag116, pt.Dense1Diag120, pt.Dense1Diag124},
 	)
-	dense1Block80Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag80, pt.Dense1Diag81, pt.Dense1Diag82, pt.Dense1Diag83, pt.Dense1Diag84, pt.Dense1Diag85, pt.Dense1Diag86, pt.Dense1Diag87, pt.Dense1Diag88, pt.Dense1Diag89},
+	dense1Acc112 := ev.RotateSum(
+		[]*runtime.Ciphertext{dense1Block0Sum3, dense1Block16Sum3, dense1Block32Sum3, dense1Block48Sum3, dense1Block64Sum3, dense1Block80Sum3, dense1Block96Sum3, dense1Block112Sum3},
+		[]int{0, 16, 32, 48, 64, 80, 96, 112},
 	)
-	dense1Block90Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag90, pt.Dense1Diag91, pt.Dense1Diag92, pt.Dense1Diag93, pt.Dense1Diag94, pt.Dense1Diag95, pt.Dense1Diag96, pt.Dense1Diag97, pt.Dense1Diag98, pt.Dense1Diag99},
-	)
-	dense1Block100Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag100, pt.Dense1Diag101, pt.Dense1Diag102, pt.Dense1Diag103, pt.Dense1Diag104, pt.Dense1Diag105, pt.Dense1Diag106, pt.Dense1Diag107, pt.Dense1Diag108, pt.Dense1Diag109},
-	)
-	dense1Block110Sum9 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7, dense1Rot8, dense1Rot9},
-		[]*runtime.Plaintext{pt.Dense1Diag110, pt.Dense1Diag111, pt.Dense1Diag112, pt.Dense1Diag113, pt.Dense1Diag114, pt.Dense1Diag115, pt.Dense1Diag116, pt.Dense1Diag117, pt.Dense1Diag118, pt.Dense1Diag119},
-	)
-	dense1Block120Sum7 := ev.DotPlain(
-		[]*runtime.Ciphertext{square1SqRelinRescaled, dense1Rot1, dense1Rot2, dense1Rot3, dense1Rot4, dense1Rot5, dense1Rot6, dense1Rot7},
-		[]*runtime.Plaintext{pt.Dense1Diag120, pt.Dense1Diag121, pt.Dense1Diag122, pt.Dense1Diag123, pt.Dense1Diag124, pt.Dense1Diag125, pt.Dense1Diag126, pt.Dense1Diag127},
-	)
-	dense1Acc120 := ev.RotateSum(
-		[]*runtime.Ciphertext{dense1Block0Sum9, dense1Block10Sum9, dense1Block20Sum9, dense1Block30Sum9, dense1Block40Sum9, dense1Block50Sum9, dense1Block60Sum9, dense1Block70Sum9, dense1Block80Sum9, dense1Block90Sum9, dense1Block100Sum9, dense1Block110Sum9, dense1Block120Sum7},
-		[]int{0, 10, 20, 30, 40, 50, 60, 70, 80, 90, 100, 110, 120},
-	)
-	dense1Fold128Rot := ev.Rotate(dense1Acc120, 128)
-	dense1Folded128 := ev.Add(dense1Acc120, dense1Fold128Rot)
+	dense1Fold128Rot := ev.Rotate(dense1Acc112, 128)
+	dense1Folded128 := ev.Add(dense1Acc112, dense1Fold128Rot)
 	dense1Fold256Rot := ev.Rotate(dense1Folded128, 256)
 	dense1Folded256 := ev.Add(dense1Folded128, dense1Fold256Rot)
 	dense1Fold512Rot := ev.Rotate(dense1Folded256, 512)

@@ -31,15 +31,15 @@ var ParamSpec = runtime.ParamSpec{
 	Q:        []uint64{18014398508400641, 8590163969, 8589475841, 8590458881, 8589279233, 8590688257},
 	P:        []uint64{2305843009211662337},
 	LogScale: 33,
-	ModelID:  "163ed30c1b8365e7e0958b542fbeb3a5",
+	ModelID:  "e61ffbf876078941fd500c235e007a93",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
 // step the program uses, made for the highest level it rotates at (Levels, in the
 // same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
-	Rotations:   []int{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 12, 16, 20, 28, 30, 32, 40, 50, 56, 60, 64, 70, 80, 84, 90, 100, 110, 120, 128, 256, 512, 1024, 2048, 4068, 4095},
-	Levels:      []int{5, 5, 5, 3, 3, 3, 3, 3, 3, 3, 1, 1, 3, 5, 3, 1, 3, 3, 5, 3, 1, 3, 3, 5, 3, 3, 3, 3, 3, 3, 3, 3, 3, 5, 5},
+	Rotations:   []int{1, 2, 3, 4, 8, 12, 16, 28, 32, 48, 56, 64, 80, 84, 96, 112, 128, 253, 254, 256, 512, 1024, 2048, 4068, 4095},
+	Levels:      []int{5, 5, 5, 3, 3, 3, 3, 5, 3, 3, 5, 3, 3, 5, 3, 3, 3, 3, 3, 3, 3, 3, 3, 5, 5},
 	Relinearize: true,
 }
 

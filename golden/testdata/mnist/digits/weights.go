@@ -18,7 +18,7 @@ var weightsBlob []byte
 
 // WeightsSHA256 is the SHA-256 of weights.bin, checked before any weight is read.
 // A change of weights shows in review as a change of this line.
-const WeightsSHA256 = "0db58806229aaff9b7773b679f3dcec46942104a817b30d372a73980b600ae89"
+const WeightsSHA256 = "cbd5e192064d09fbcc6074b568168e3687c91aa5a16c823f05e6149c8027edc3"
 
 // LoadWeights checks the embedded blob against WeightsSHA256 and parses it.
 func LoadWeights() (*runtime.Weights, error) {
