@@ -16,7 +16,8 @@ const BoundDefinition = `lower bound: the work that the compiled program's layou
 primitives measured in the same run. Per linear layer, with K the set of nonzero diagonals of its layout (of the
 blocked matrix where the layer is blocked): |K| plaintext products and |K|-1 additions, or |K| terms of a dot
 where that is cheaper; rotations as the cheapest baby-step giant-step split of K over every baby-step count n1,
-in either orientation (baby steps k mod n1 rotate the input ciphertext and are priced as one hoisted set, giant
+with diagonals read in [0, D) or as signed offsets (the baby-step window from 0 or centred on 0), in either
+orientation (baby steps k mod n1 rotate the input ciphertext and are priced as one hoisted set, giant
 steps k div n1 rotate distinct sums and are priced as full rotations, or as the terms of one rotate-sum where a sum has two or more and that is cheaper;
 or the roles of the two swapped); a blocked layer's sum of P/B shifted copies (P the period D, or the shorter
 period with which its input repeats, read off its folds) priced as the cheapest staging of hoisted sets
@@ -264,13 +265,13 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 			}
 			// distinct counts the distinct nonzero f(d) < D+1 over ds,
 			// with a generation stamp instead of a set per count.
-			stamp, gen := make([]int, D+1), 0
+			stamp, gen := make([]int, 2*D+1), 0
 			distinct := func(ds []int, f func(int) int) int {
 				gen++
 				n := 0
 				for _, d := range ds {
-					if v := f(d); v != 0 && stamp[v] != gen {
-						stamp[v] = gen
+					if v := f(d); v != 0 && stamp[D+v] != gen {
+						stamp[D+v] = gen
 						n++
 					}
 				}
@@ -281,11 +282,25 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 			// rotates each sum by k − k mod n1; the transposed one hoists
 			// the input rotations by n1·(k div n1) and rotates each sum by
 			// k mod n1. Ties go to the usual split and the smallest n1.
+			// The signed readings of bestSplit (diagonals as offsets in
+			// (−D/2, D/2], the window from 0 or centred on zero) count
+			// steps the same way.
+			signed := func(centred bool) func(d, n1 int) (int, int) {
+				return func(d, n1 int) (int, int) {
+					s := split{n1: n1, signed: true}
+					if centred {
+						s.i0 = -(n1 / 2)
+					}
+					return s.parts(d, D)
+				}
+			}
 			forms := []struct {
 				input, sum func(d, n1 int) int
 			}{
 				{func(d, n1 int) int { return d % n1 }, func(d, n1 int) int { return d / n1 }},
 				{func(d, n1 int) int { return d / n1 }, func(d, n1 int) int { return d % n1 }},
+				{func(d, n1 int) int { i, _ := signed(false)(d, n1); return i }, func(d, n1 int) int { _, g := signed(false)(d, n1); return g }},
+				{func(d, n1 int) int { i, _ := signed(true)(d, n1); return i }, func(d, n1 int) int { _, g := signed(true)(d, n1); return g }},
 			}
 			for form, f := range forms {
 				for n1 := 1; n1 <= maxK+1; n1++ {
