@@ -10,31 +10,15 @@ import "github.com/lanthorn/lanthorn/ir"
 //
 // The snapshot of the exact key set under a budget is fused the same way.
 func fuseProducts(s *State) error {
-	if s.Opts.Naive {
-		return nil
-	}
-	fuseDots(s.Prog)
-	if b := s.Report.Budget; b != nil && b.Exact != nil {
-		fuseDots(b.Exact)
-	}
+	rewriteSums(s, fuseDots)
 	return nil
 }
 
 // fuseDots rewrites p's sums of plaintext products as dot ops, with new
 // ops (a snapshot may share the old ones).
 func fuseDots(p *ir.Program) {
-	def := make([]*ir.Op, len(p.Values))
-	reader := make([]*ir.Op, len(p.Values)) // the last reader
-	uses := make([]int, len(p.Values))
-	for _, op := range p.Ops {
-		for _, r := range op.Results {
-			def[r] = op
-		}
-		for _, a := range op.Args {
-			uses[a]++
-			reader[a] = op
-		}
-	}
+	f := newDataflow(p)
+	def, reader, uses := f.def, f.reader, f.uses
 	product := func(v ir.ValueID) bool {
 		d := def[v]
 		return d != nil && d.Kind == ir.OpMulPlain && uses[v] == 1
@@ -84,14 +68,5 @@ func fuseDots(p *ir.Program) {
 		delete(drop, op)
 		p.Ops[i] = &ir.Op{Kind: ir.OpDot, Args: args, Consts: consts, Results: op.Results, Const: -1, Layer: op.Layer}
 	}
-	if len(drop) == 0 {
-		return
-	}
-	kept := p.Ops[:0]
-	for _, op := range p.Ops {
-		if !drop[op] {
-			kept = append(kept, op)
-		}
-	}
-	p.Ops = kept
+	dropOps(p, drop)
 }

@@ -48,3 +48,51 @@ func uses(p *ir.Program, v ir.ValueID) []*ir.Op {
 	}
 	return out
 }
+
+// rewriteSums applies a rewrite of sums (mergeRotationSums, fuseDots) to
+// the program and, under a key budget, to the snapshot of the exact key
+// set, so that the plan prices both points alike; not to a naive lowering.
+func rewriteSums(s *State, rewrite func(*ir.Program)) {
+	if s.Opts.Naive {
+		return
+	}
+	rewrite(s.Prog)
+	if b := s.Report.Budget; b != nil && b.Exact != nil {
+		rewrite(b.Exact)
+	}
+}
+
+// dataflow is each value's defining op, its number of reads and its last
+// reader.
+type dataflow struct {
+	def, reader []*ir.Op
+	uses        []int
+}
+
+func newDataflow(p *ir.Program) dataflow {
+	f := dataflow{def: make([]*ir.Op, len(p.Values)), reader: make([]*ir.Op, len(p.Values)), uses: make([]int, len(p.Values))}
+	for _, op := range p.Ops {
+		for _, r := range op.Results {
+			f.def[r] = op
+		}
+		for _, a := range op.Args {
+			f.uses[a]++
+			f.reader[a] = op
+		}
+	}
+	return f
+}
+
+// dropOps removes the ops in drop from p, keeping the others' order.
+func dropOps(p *ir.Program, drop map[*ir.Op]bool) {
+	if len(drop) == 0 {
+		return
+	}
+	kept := p.Ops[:0]
+	for _, op := range p.Ops {
+		if !drop[op] {
+			kept = append(kept, op)
+		}
+	}
+	p.Ops = kept
+}

@@ -16,13 +16,7 @@ import "github.com/lanthorn/lanthorn/ir"
 // Under a key budget, the snapshot of the program with the exact key set is
 // merged the same way, so that the plan prices both points alike.
 func sumRotations(s *State) error {
-	if s.Opts.Naive {
-		return nil
-	}
-	mergeRotationSums(s.Prog)
-	if b := s.Report.Budget; b != nil && b.Exact != nil {
-		mergeRotationSums(b.Exact)
-	}
+	rewriteSums(s, mergeRotationSums)
 	return nil
 }
 
@@ -30,16 +24,8 @@ func sumRotations(s *State) error {
 // makes new ops and leaves the replaced ones untouched, since a snapshot
 // may share them.
 func mergeRotationSums(p *ir.Program) {
-	def := make([]*ir.Op, len(p.Values))
-	uses := make([]int, len(p.Values))
-	for _, op := range p.Ops {
-		for _, r := range op.Results {
-			def[r] = op
-		}
-		for _, a := range op.Args {
-			uses[a]++
-		}
-	}
+	f := newDataflow(p)
+	def, uses := f.def, f.uses
 	interior := func(v ir.ValueID) bool {
 		d := def[v]
 		return d != nil && d.Kind == ir.OpAdd && uses[v] == 1
@@ -120,14 +106,5 @@ func mergeRotationSums(p *ir.Program) {
 		}
 		p.Ops[i] = &ir.Op{Kind: ir.OpRotSum, Args: args, Steps: steps, Results: op.Results, Const: -1, Layer: op.Layer}
 	}
-	if len(drop) == 0 {
-		return
-	}
-	kept := p.Ops[:0]
-	for _, op := range p.Ops {
-		if !drop[op] {
-			kept = append(kept, op)
-		}
-	}
-	p.Ops = kept
+	dropOps(p, drop)
 }
