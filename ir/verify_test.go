@@ -98,3 +98,43 @@ func TestEvalChebyshev(t *testing.T) {
 
 func cos(x float64) float64          { return math.Cos(x) }
 func cosN(n int, th float64) float64 { return math.Cos(float64(n) * th) }
+
+// The rotate-sum and dot ops: a well-formed one passes; a step per term, a
+// constant per operand, a rotated term and matching levels are required.
+func TestVerifyRotSumAndDot(t *testing.T) {
+	// tinySums: input → dot(x, x) → rotsum(d [step 0], d [step 1]) →
+	// rescale → output, with the key for step 1.
+	tinySums := func() *Program {
+		p := tiny()
+		x, r := ValueID(0), ValueID(2)
+		d := p.NewValue("d", Cipher, 0)
+		s := p.NewValue("s", Cipher, 0)
+		p.Consts = append(p.Consts, &Const{Name: "w2", Kind: Vector, Data: []float64{0, 1, 0, 0}, Level: 1, Scale: Prime(1)})
+		p.Ops[1] = &Op{Kind: OpDot, Args: []ValueID{x, x}, Consts: []int{0, 1}, Results: []ValueID{d}, Const: -1}
+		p.Ops = []*Op{p.Ops[0], p.Ops[1],
+			{Kind: OpRotSum, Args: []ValueID{d, d}, Steps: []int{0, 1}, Results: []ValueID{s}, Const: -1},
+			{Kind: OpRescale, Args: []ValueID{s}, Results: []ValueID{r}, Const: -1}, p.Ops[3]}
+		p.Values[d].Level, p.Values[d].Scale = 1, p.Values[1].Scale
+		p.Values[s].Level, p.Values[s].Scale = 1, p.Values[1].Scale
+		p.Rotations, p.RotationLevels = []int{1}, []int{1}
+		return p
+	}
+	require.NoError(t, VerifyProgram(tinySums(), Keyed))
+	for _, c := range []struct {
+		name   string
+		break_ func(p *Program)
+		want   string
+	}{
+		{"rotsum step count", func(p *Program) { p.Ops[2].Steps = []int{1} }, "1 steps for 2 terms"},
+		{"rotsum unrotated", func(p *Program) { p.Ops[2].Steps = []int{0, 0} }, "no term is rotated"},
+		{"rotsum key", func(p *Program) { p.Rotations, p.RotationLevels = nil, nil }, "rotation keys [], program uses [1]"},
+		{"dot constants", func(p *Program) { p.Ops[1].Consts = []int{0} }, "1 constants for 2 operands"},
+		{"dot level", func(p *Program) { p.Consts[1].Level = 0 }, "plaintext w2 at level 0 meets a ciphertext at level 1"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			p := tinySums()
+			c.break_(p)
+			require.ErrorContains(t, VerifyProgram(p, Keyed), c.want)
+		})
+	}
+}

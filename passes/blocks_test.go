@@ -183,14 +183,7 @@ func TestWideModel(t *testing.T) {
 	require.Greater(t, g.Input.Size, prog.Params.Slots(), "the input must not fit one ciphertext")
 	require.Equal(t, 2, prog.Input.Count())
 	require.Equal(t, 1, prog.Output.Count())
-	for k := range 3 {
-		x := randomInput(uint64(k), g.Input.Size)
-		want, err := st.Model.Reference(x)
-		require.NoError(t, err)
-		got, err := prog.Simulate(x)
-		require.NoError(t, err)
-		require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
-	}
+	requireSimulatesReference(t, st, prog, g.Input.Size)
 }
 
 func TestChunkPeriod(t *testing.T) {

@@ -191,14 +191,7 @@ func TestDenseInBlocks(t *testing.T) {
 	prog, st, err := Compile(g, Options{})
 	require.NoError(t, err)
 	require.Contains(t, prog.Layers[0].Kind, "in blocks of 16")
-	for k := range 3 {
-		x := randomInput(uint64(k), 200)
-		want, err := st.Model.Reference(x)
-		require.NoError(t, err)
-		got, err := prog.Simulate(x)
-		require.NoError(t, err)
-		require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
-	}
+	requireSimulatesReference(t, st, prog, 200)
 }
 
 // A strided convolution that reads the input is evaluated on one copy of
@@ -224,14 +217,7 @@ func TestConvInputCopies(t *testing.T) {
 			require.Equal(t, c.copies, prog.Input.Copies)
 			require.Equal(t, c.pitch, prog.Input.Pitch)
 			require.Equal(t, c.plainMulsLayer, prog.Layers[0].PlainMuls)
-			for k := range 3 {
-				x := randomInput(uint64(k), g.Input.Size)
-				want, err := st.Model.Reference(x)
-				require.NoError(t, err)
-				got, err := prog.Simulate(x)
-				require.NoError(t, err)
-				require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
-			}
+			requireSimulatesReference(t, st, prog, g.Input.Size)
 		})
 	}
 }

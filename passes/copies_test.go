@@ -215,14 +215,7 @@ func TestCopiesOnlyWhereZerosProven(t *testing.T) {
 			} else {
 				require.ErrorIs(t, err, errNoCopies)
 			}
-			for k := range 3 {
-				x := randomInput(uint64(k), g.Input.Size)
-				want, err := st.Model.Reference(x)
-				require.NoError(t, err)
-				got, err := prog.Simulate(x)
-				require.NoError(t, err)
-				require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9)
-			}
+			requireSimulatesReference(t, st, prog, g.Input.Size)
 		})
 	}
 }

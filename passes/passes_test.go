@@ -275,3 +275,18 @@ func TestDumpAfter(t *testing.T) {
 	require.Contains(t, st.Report.Dumps["keys"], "keys rotations")
 	require.True(t, strings.HasPrefix(st.Report.Dumps["approximate"], "graph m"))
 }
+
+// requireSimulatesReference runs prog on cleartext slots (ir.Program.Simulate)
+// for three random inputs of size n and holds it to the float64 reference
+// of the model st compiled, within 1e-9.
+func requireSimulatesReference(t *testing.T, st *State, prog *ir.Program, n int) {
+	t.Helper()
+	for k := range 3 {
+		x := randomInput(uint64(k), n)
+		want, err := st.Model.Reference(x)
+		require.NoError(t, err)
+		got, err := prog.Simulate(x)
+		require.NoError(t, err)
+		require.LessOrEqual(t, ir.MaxAbsDiff(want, got), 1e-9, "input %d", k)
+	}
+}

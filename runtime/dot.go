@@ -1,7 +1,6 @@
 package runtime
 
 import (
-	"errors"
 	"fmt"
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
@@ -40,7 +39,7 @@ func (e *Evaluator) DotPlain(cts []*Ciphertext, pts []*Plaintext) *Ciphertext {
 				return nil, fmt.Errorf("term %d: %w", i, err)
 			}
 			if !ct.ct.IsNTT {
-				return nil, fmt.Errorf("term %d: %w", i, errors.New("dot-plain needs ciphertexts in the NTT domain"))
+				return nil, fmt.Errorf("term %d: dot-plain needs ciphertexts in the NTT domain", i)
 			}
 			s := ct.ct.Scale.Mul(pt.pt.Scale)
 			if i == 0 {

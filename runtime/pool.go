@@ -63,7 +63,7 @@ func (l *lane) scratchQP(hp hefloat.Parameters) *rlwe.Element[ringqp.Poly] {
 
 // scratchQ is the lane's scratch polynomial mod Q at the top level.
 func (l *lane) scratchQ(hp hefloat.Parameters) ring.Poly {
-	if l.q.Level() < 0 || len(l.q.Coeffs) == 0 {
+	if len(l.q.Coeffs) == 0 {
 		l.q = hp.RingQ().NewPoly()
 	}
 	return l.q

@@ -61,12 +61,9 @@ func (e *Evaluator) RotateSum(cts []*Ciphertext, steps []int) *Ciphertext {
 type rotSum struct {
 	p      *Params
 	cts    []*Ciphertext
-	raw    []int
-	galEls []uint64 // 0 for an unrotated term
+	ks     []int    // normalised steps, 0 for an unrotated term
+	galEls []uint64 // their Galois elements (0 for an unrotated term)
 }
-
-// steps returns the step of term i as given.
-func (s *rotSum) steps(i int) int { return s.raw[i] }
 
 // level is the level of the terms (checked equal).
 func (s *rotSum) level() int { return s.cts[0].ct.Level() }
@@ -92,10 +89,10 @@ func (e *Evaluator) newRotSum(cts []*Ciphertext, steps []int) (*rotSum, error) {
 	if len(cts) == 0 || len(cts) != len(steps) {
 		return nil, fmt.Errorf("rotate-sum of %d ciphertexts with %d steps", len(cts), len(steps))
 	}
-	s := &rotSum{p: e.p, cts: cts, raw: steps, galEls: make([]uint64, len(cts))}
+	s := &rotSum{p: e.p, cts: cts, ks: make([]int, len(cts)), galEls: make([]uint64, len(cts))}
 	for i, st := range steps {
 		if k := e.p.normStep(st); k != 0 {
-			s.galEls[i] = e.p.hp.GaloisElement(k)
+			s.ks[i], s.galEls[i] = k, e.p.hp.GaloisElement(k)
 		}
 	}
 	return s, nil
@@ -121,7 +118,7 @@ func (s *rotSum) checkTerm(e *Evaluator, i int) error {
 		return fmt.Errorf("term %d: rotate-sum needs ciphertexts in the NTT domain", i)
 	}
 	if s.galEls[i] != 0 {
-		if err := e.rotationKey(e.p.normStep(s.steps(i)), ct.Level()); err != nil {
+		if err := e.rotationKey(s.ks[i], ct.Level()); err != nil {
 			return fmt.Errorf("term %d: %w", i, err)
 		}
 	}
