@@ -99,6 +99,7 @@ func LowerBound(p *ir.Program, prof *Profile) (*Bound, error) {
 	if p.Params.LogN == 0 {
 		return nil, fmt.Errorf("bound: program %s has no parameters yet", p.Name)
 	}
+	prof = prof.ForSpecials(len(p.Params.LogP))
 	logN, D := p.Params.LogN, p.Period
 	cost := func(op string, level int) float64 { return prof.Cost(op, logN, max(level, 0)) / 1e6 }
 	def := map[ir.ValueID]*ir.Op{}

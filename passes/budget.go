@@ -97,7 +97,7 @@ func keyBudget(s *State) error {
 	}
 	slices.Sort(cands)
 	cands = slices.Compact(cands)
-	prof := DefaultProfile()
+	prof := s.profile()
 	g := newStepGraph(p.Period)
 	var targets []int
 	for _, u := range rotationUses(p) {

@@ -32,6 +32,11 @@ const (
 	CostDot = "dot"
 )
 
+// keySwitchOps are the primitives whose cost depends on how many primes the
+// special modulus P has: a profile may hold them measured with k > 1 special
+// primes as well, under their name and "@k" ("rotate@2").
+var keySwitchOps = []string{CostMulRelin, CostRotate, CostHoisted, CostRotSum}
+
 var costOps = []string{CostAdd, CostMulPlain, CostMulRelin, CostRescale, CostRotate, CostHoisted, CostEncode}
 
 // fitOps are the primitives calibrate measures: the required ones and
@@ -45,7 +50,35 @@ var fitOps = append(slices.Clone(costOps), CostRotSum, CostDot)
 type Profile struct {
 	Machine string                     `yaml:"machine"`
 	Ops     map[string]map[int][]Point `yaml:"ops"`
+	// specials is the number of special primes key switches are priced
+	// with (ForSpecials); 0 and 1 mean one.
+	specials int
 }
+
+// ForSpecials returns the profile pricing key switches as made with k
+// special primes: from the "op@k" entries where the profile has them, else
+// as measured with one (profiles written before they were measured).
+func (p *Profile) ForSpecials(k int) *Profile {
+	c := *p
+	c.specials = k
+	return &c
+}
+
+// HasSpecials reports whether the profile measured key switches with k
+// special primes at ring degree 2^logN (always true for k = 1).
+func (p *Profile) HasSpecials(k, logN int) bool {
+	if k <= 1 {
+		return true
+	}
+	for _, op := range keySwitchOps {
+		if len(p.Ops[specialsName(op, k)][logN]) == 0 {
+			return false
+		}
+	}
+	return true
+}
+
+func specialsName(op string, k int) string { return fmt.Sprintf("%s@%d", op, k) }
 
 // Point is one measured time: level and nanoseconds.
 type Point struct {
@@ -84,6 +117,11 @@ func ParseProfile(data []byte) (*Profile, error) {
 // nanoseconds.
 func (p *Profile) Cost(op string, logN, level int) float64 {
 	byN := p.Ops[op]
+	if p.specials > 1 && slices.Contains(keySwitchOps, op) {
+		if m := p.Ops[specialsName(op, p.specials)]; len(m) > 0 {
+			byN = m
+		}
+	}
 	if len(byN) == 0 {
 		return 0
 	}
@@ -127,7 +165,11 @@ func interpolate(pts []Point, level int) float64 {
 	return math.Max(t, floor/2)
 }
 
-// FitProfile turns measured timings into a profile.
+// FitProfile turns measured timings into a profile. Key switches measured
+// with k > 1 special primes go under "op@k"; every other primitive, and key
+// switches with one special prime, under their names. A primitive that does
+// not depend on P is taken from the timings with the fewest special primes
+// at each ring degree.
 func FitProfile(machine string, ts []runtime.OpTiming) (*Profile, error) {
 	get := map[string]func(runtime.OpTiming) float64{
 		CostAdd:      func(t runtime.OpTiming) float64 { return t.Add },
@@ -141,24 +183,43 @@ func FitProfile(machine string, ts []runtime.OpTiming) (*Profile, error) {
 		CostDot:      func(t runtime.OpTiming) float64 { return t.Dot },
 	}
 	p := &Profile{Machine: machine, Ops: map[string]map[int][]Point{}}
-	count := map[int]int{}
+	type set struct{ logN, specials int }
+	count := map[set]int{}
+	fewest := map[int]int{} // per ring degree, the fewest special primes measured
 	for _, t := range ts {
-		count[t.LogN]++
+		k := max(t.Specials, 1)
+		count[set{t.LogN, k}]++
+		if f, ok := fewest[t.LogN]; !ok || k < f {
+			fewest[t.LogN] = k
+		}
 	}
-	for n, c := range count {
-		if c < 2 {
-			return nil, fmt.Errorf("calibrate: logN %d measured at %d levels, need at least 2", n, c)
+	for c, n := range count {
+		if n < 2 {
+			return nil, fmt.Errorf("calibrate: logN %d (%d special primes) measured at %d levels, need at least 2", c.logN, c.specials, n)
 		}
 	}
 	for _, op := range fitOps {
 		if !slices.Contains(costOps, op) && !slices.ContainsFunc(ts, func(t runtime.OpTiming) bool { return get[op](t) > 0 }) {
 			continue // an optional primitive these timings do not have
 		}
-		p.Ops[op] = map[int][]Point{}
+		switches := slices.Contains(keySwitchOps, op)
 		for _, t := range ts {
-			p.Ops[op][t.LogN] = append(p.Ops[op][t.LogN], Point{Level: t.Level, NS: math.Round(get[op](t))})
+			k := max(t.Specials, 1)
+			name := op
+			switch {
+			case switches && k > 1:
+				name = specialsName(op, k)
+			case !switches && k != fewest[t.LogN]:
+				continue
+			}
+			if p.Ops[name] == nil {
+				p.Ops[name] = map[int][]Point{}
+			}
+			p.Ops[name][t.LogN] = append(p.Ops[name][t.LogN], Point{Level: t.Level, NS: math.Round(get[op](t))})
 		}
-		for _, pts := range p.Ops[op] {
+	}
+	for _, byN := range p.Ops {
+		for _, pts := range byN {
 			slices.SortFunc(pts, func(a, b Point) int { return a.Level - b.Level })
 		}
 	}
@@ -176,6 +237,7 @@ type Estimate struct {
 
 // EstimateProgram prices every op of a program at its level.
 func EstimateProgram(p *ir.Program, prof *Profile) Estimate {
+	prof = prof.ForSpecials(len(p.Params.LogP))
 	est := Estimate{LayerMS: make([]float64, len(p.Layers))}
 	logN := p.Params.LogN
 	for _, op := range p.Ops {

@@ -44,6 +44,8 @@ var Pipeline = []Pass{
 		Why: "pick the smallest ring degree whose 128-bit bound holds the modulus chain the depth and precision need"},
 	{Name: "levels", Run: assignLevels, Required: true, Stage: ir.Leveled,
 		Why: "assign levels and exact scales; encode plaintexts at the scale of the prime the next rescale drops"},
+	{Name: "special-primes", Run: chooseSpecials, Stage: ir.Leveled,
+		Why: "give P as many primes as makes key switches cheapest within the 128-bit bound: fewer, larger digits, smaller keys"},
 	{Name: "key-budget", Run: keyBudget, Stage: ir.Leveled,
 		Why: "under a key budget, keep fewer rotation keys; nest sums of rotations and compose the other rotations as chains of them"},
 	{Name: "sum-rotations", Run: sumRotations, Stage: ir.Leveled,
@@ -71,6 +73,8 @@ var Order = []struct{ Before, After, Why string }{
 	{"levels", "keys", "keys are generated per level of use"},
 	{"lower", "output-mask", "the mask reads the lowered program's slot layout"},
 	{"output-mask", "rescale", "a mask that is a plaintext product gets its rescale placed with the others, and params counts its level"},
+	{"levels", "special-primes", "the program is priced at its levels"},
+	{"special-primes", "key-budget", "keys are sized and key switches priced with the special primes chosen"},
 	{"levels", "key-budget", "each rotation is weighted by its level's cost, and keys are sized by the chain params chose"},
 	{"key-budget", "keys", "the key set is collected from the rotations the budget leaves"},
 	{"key-budget", "sum-rotations", "the budget rewrites single rotations; they merge only after it"},
@@ -111,6 +115,9 @@ type Options struct {
 	// larger ring would hold them in one; 0 splits only beyond the pinned
 	// ring or the largest ring (see chunkPeriod).
 	ChunkSlots int
+	// Profile is the cost model passes price choices with (the
+	// selection's); nil means DefaultProfile().
+	Profile *Profile
 }
 
 // Report collects what the passes decided, for plans and trace comments.
@@ -141,6 +148,19 @@ type State struct {
 	// exactly zero: set by the selection when it lowers a segment that
 	// reads what earlier layers made (knownZeros); nil otherwise.
 	inputZeros []bool
+}
+
+// profile is the cost model of this compilation, pricing key switches with
+// the program's special primes once params has chosen them.
+func (s *State) profile() *Profile {
+	prof := s.Opts.Profile
+	if prof == nil {
+		prof = DefaultProfile()
+	}
+	if s.Prog != nil {
+		prof = prof.ForSpecials(len(s.Prog.Params.LogP))
+	}
+	return prof
 }
 
 func (s *State) note(format string, args ...any) {

@@ -28,7 +28,7 @@ type segProgram struct {
 	prog      *ir.Program
 	depth     int
 	rotations int
-	cost      map[[2]int]float64
+	cost      map[[3]int]float64
 }
 
 // segmentSpace is every segment the selection can build from a graph
@@ -197,7 +197,7 @@ func (sp *segmentSpace) lower(s *segment, D int) (*segProgram, error) {
 	for _, l := range st.Prog.Layers {
 		rot += l.Rotations
 	}
-	out := &segProgram{prog: st.Prog, depth: programDepth(st.Prog), rotations: rot, cost: map[[2]int]float64{}}
+	out := &segProgram{prog: st.Prog, depth: programDepth(st.Prog), rotations: rot, cost: map[[3]int]float64{}}
 	if s.lowered == nil {
 		s.lowered = map[int]*segProgram{}
 	}
@@ -205,12 +205,12 @@ func (sp *segmentSpace) lower(s *segment, D int) (*segProgram, error) {
 	return out, nil
 }
 
-// price is the estimated time in ms of the segment entered at level top in
-// ring degree 2^logN: its ops get the levels they would have in the whole
+// price is the estimated time in ms of the segment entered at level top
+// under parameters pr (its ring degree and special primes): its ops get the levels they would have in the whole
 // program (each rescale and polynomial level counts down from top), and
 // EstimateProgram prices them, as it prices the compiled program.
-func (p *segProgram) price(prof *Profile, logN, top int) float64 {
-	key := [2]int{logN, top}
+func (p *segProgram) price(prof *Profile, pr ir.Params, top int) float64 {
+	key := [3]int{pr.LogN, len(pr.LogP), top}
 	if c, ok := p.cost[key]; ok {
 		return c
 	}
@@ -218,7 +218,7 @@ func (p *segProgram) price(prof *Profile, logN, top int) float64 {
 	for i, u := range levelsUsed(prog) {
 		prog.Values[i].Level = top - u
 	}
-	prog.Params.LogN = logN
+	prog.Params.LogN, prog.Params.LogP = pr.LogN, pr.LogP
 	// Its sums of rotations are priced as the rotate-sums sum-rotations
 	// makes of them in the compiled program.
 	merged := snapshot(prog)

@@ -96,6 +96,7 @@ type Choice struct {
 // composes); the choice is then compiled under the budget, so that the
 // budget's exact point is the program the same spec gets without one.
 func Select(g *ir.Graph, opts Options, prof *Profile, obj Objective) (*ir.Program, *State, []Candidate, error) {
+	opts.Profile, opts.Objective = prof, obj
 	prog, st, err := Compile(g, opts)
 	if err != nil {
 		return prog, st, nil, err

@@ -126,7 +126,8 @@ func bruteForce(t *testing.T, g *ir.Graph, prof *Profile, obj Objective) (best f
 				}
 				return
 			}
-			_, s, err := Compile(g, Options{KeepApart: apart, Degree: d, Method: maps.Clone(m)})
+			// The objective and profile also choose the special primes.
+			_, s, err := Compile(g, Options{KeepApart: apart, Degree: d, Method: maps.Clone(m), Objective: obj, Profile: prof})
 			if err != nil {
 				return
 			}

@@ -95,6 +95,9 @@ func (se *searcher) params(depth, period int) *cell {
 	st := &State{Source: se.final, Model: se.final, Graph: se.final, Prog: p, Report: &Report{}}
 	c := &cell{err: chooseParams(st)}
 	c.params = p.Params
+	if c.err == nil && !se.sp.opts.Naive && (se.final.Pin == nil || len(se.final.Pin.LogP) == 0) {
+		c.params, c.err = withSpecials(p.Params, se.prof, se.obj)
+	}
 	se.cells[key] = c
 	return c
 }
@@ -239,7 +242,7 @@ func (se *searcher) best(D, R int, pr ir.Params, depthOf map[*segment]int) *solu
 						continue
 					}
 					lp := s.lowered[D]
-					sc := e.sc.add(score{ms: lp.price(se.prof, pr.LogN, top-u), keys: int64(lp.rotations)})
+					sc := e.sc.add(score{ms: lp.price(se.prof, pr, top-u), keys: int64(lp.rotations)})
 					nw := max(w, se.hits(s.out, D))
 					nx := &best[s.to+1][u+d][nw]
 					if !nx.ok || better(sc, nx.sc, se.obj) {

@@ -14,6 +14,7 @@ import (
 // level, in nanoseconds, as the evaluator runs it (checks included).
 type OpTiming struct {
 	LogN, Level int
+	Specials    int     // primes in the special modulus P of the parameters measured
 	Add         float64 // ciphertext + ciphertext
 	MulPlain    float64 // ciphertext × plaintext, no rescale
 	MulRelin    float64 // ciphertext × ciphertext, then relinearize
@@ -77,7 +78,7 @@ func MeasureOps(logN int, logQ, logP []int, levels []int, reps int) (out []OpTim
 		if err := enc.Err(); err != nil {
 			return nil, err
 		}
-		t := OpTiming{LogN: logN, Level: level}
+		t := OpTiming{LogN: logN, Level: level, Specials: len(logP)}
 		t.Add = median(reps, func() { ev.Add(ct, ct) })
 		t.MulPlain = median(reps, func() { ev.MulPlain(ct, pt) })
 		t.MulRelin = median(reps, func() { ev.Relinearize(ev.Mul(ct, ct)) })

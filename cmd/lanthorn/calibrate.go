@@ -20,8 +20,9 @@ func runCalibrate(args []string, stdout, stderr io.Writer) error {
 		fmt.Fprintf(stderr, "Usage: lanthorn calibrate -o profile.yaml\n\n"+
 			"Measures the CKKS primitives (addition, plaintext and ciphertext products,\n"+
 			"rescale, rotation, hoisted rotations, encoding) with lattigo on this machine\n"+
-			"at ring degrees 2^13 to 2^15 and several levels, and writes the cost model\n"+
-			"that build and plan take with -profile. Takes about a minute.\n\nFlags:\n")
+			"at ring degrees 2^13 to 2^15 and several levels, the key switches with one,\n"+
+			"two and three special primes, and writes the cost model that build and plan\n"+
+			"take with -profile. Takes about three minutes.\n\nFlags:\n")
 		fs.PrintDefaults()
 	}
 	if _, err := parseFlags(fs, args, stderr); err != nil {
@@ -33,17 +34,23 @@ func runCalibrate(args []string, stdout, stderr io.Writer) error {
 	}
 	start := time.Now()
 	var all []runtime.OpTiming
-	for _, logN := range []int{13, 14, 15} {
-		logQ := []int{50}
-		for range 10 {
-			logQ = append(logQ, 40)
+	for _, specials := range []int{1, 2, 3} {
+		logP := make([]int, specials)
+		for i := range logP {
+			logP[i] = 50
 		}
-		ts, err := runtime.MeasureOps(logN, logQ, []int{50}, []int{1, 3, 5, 7, 10}, *reps)
-		if err != nil {
-			return fmt.Errorf("calibrate logN %d: %w", logN, err)
+		for _, logN := range []int{13, 14, 15} {
+			logQ := []int{50}
+			for range 10 {
+				logQ = append(logQ, 40)
+			}
+			ts, err := runtime.MeasureOps(logN, logQ, logP, []int{1, 3, 5, 7, 10}, *reps)
+			if err != nil {
+				return fmt.Errorf("calibrate logN %d, %d special primes: %w", logN, specials, err)
+			}
+			all = append(all, ts...)
+			fmt.Fprintf(stderr, "measured logN %d, %d special primes (%s)\n", logN, specials, time.Since(start).Round(time.Second))
 		}
-		all = append(all, ts...)
-		fmt.Fprintf(stderr, "measured logN %d (%s)\n", logN, time.Since(start).Round(time.Second))
 	}
 	machine := fmt.Sprintf("%s/%s, %d cores", goruntime.GOOS, goruntime.GOARCH, goruntime.NumCPU())
 	prof, err := passes.FitProfile(machine, all)

@@ -31,6 +31,9 @@ type Plaintexts struct {
 	RectifyPoly    *runtime.Polynomial // chebyshev basis, degree 12
 	HeadDiag0      *runtime.Plaintext  // level 1, scale q1
 	HeadDiag1      *runtime.Plaintext  // level 1, scale q1
+	HeadDiag2      *runtime.Plaintext  // level 1, scale q1
+	HeadDiag3      *runtime.Plaintext  // level 1, scale q1
+	HeadDiag7      *runtime.Plaintext  // level 1, scale q1
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -66,6 +69,9 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.RectifyPoly = enc.Polynomial("rectify.poly", runtime.Chebyshev)
 	pt.HeadDiag0 = enc.Multiplier("head.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
 	pt.HeadDiag1 = enc.Multiplier("head.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag2 = enc.Multiplier("head.diag2", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag3 = enc.Multiplier("head.diag3", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
+	pt.HeadDiag7 = enc.Multiplier("head.diag7", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -137,14 +143,23 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// tolerance.yaml:56:5 rectify: relu (chebyshev, degree 12) · level 5→1 · 4 levels in the polynomial
 	rectifyOut := ev.Poly(mixNarrowOutRescaled, pt.RectifyPoly, runtime.Scale{Pow2: 30})
 
-	// tolerance.yaml:60:5 head: dense 4→2 (in blocks of 2, over the input's period 4) · level 1→0 · 2 rotations · baby-step giant-step 1×8 · 2 plaintext multiplications · 1 rescale
-	headProd0 := ev.MulPlain(rectifyOut, pt.HeadDiag0)
-	headProd1 := ev.MulPlain(rectifyOut, pt.HeadDiag1)
-	headBlock1Rot := ev.Rotate(headProd1, 1)
-	headAcc1 := ev.Add(headProd0, headBlock1Rot)
-	headFold2Rot := ev.Rotate(headAcc1, 2)
-	headFolded2 := ev.Add(headAcc1, headFold2Rot)
-	headFolded2Rescaled := ev.Rescale(headFolded2)
+	// tolerance.yaml:60:5 head: dense 4→2 · level 1→0 · 3 rotations · baby-step giant-step 2×4 · 5 plaintext multiplications · 1 rescale
+	rectifyOutHoisted := ev.RotateHoisted(rectifyOut, 1)
+	headRot1 := rectifyOutHoisted[0]
+	headBlock0Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{rectifyOut, headRot1},
+		[]*runtime.Plaintext{pt.HeadDiag0, pt.HeadDiag1},
+	)
+	headBlock2Sum := ev.DotPlain(
+		[]*runtime.Ciphertext{rectifyOut, headRot1},
+		[]*runtime.Plaintext{pt.HeadDiag2, pt.HeadDiag3},
+	)
+	headProd7 := ev.MulPlain(headRot1, pt.HeadDiag7)
+	headAcc6 := ev.RotateSum(
+		[]*runtime.Ciphertext{headBlock0Sum, headBlock2Sum, headProd7},
+		[]int{0, 2, 6},
+	)
+	headAcc6Rescaled := ev.Rescale(headAcc6)
 
-	return []*runtime.Ciphertext{headFolded2Rescaled}, ev.Err()
+	return []*runtime.Ciphertext{headAcc6Rescaled}, ev.Err()
 }
