@@ -253,9 +253,19 @@ func (e *Evaluator) rotationKey(k, level int) error {
 }
 
 // Rotate rotates the slot vector left by step: slot i of the result holds
-// slot i+step (mod Slots) of ct.
+// slot i+step (mod Slots) of ct. With several threads its key switch is
+// split into tasks that two lanes share (keyswitch.go), bit-identically.
 func (e *Evaluator) Rotate(ct *Ciphertext, step int) *Ciphertext {
-	return e.do(func() string { return fmt.Sprintf("rotate %d", step) }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
+	name := func() string { return fmt.Sprintf("rotate %d", step) }
+	if e != nil && e.splits() {
+		if k := e.p.normStep(step); k != 0 {
+			if !e.start(name) {
+				return nil
+			}
+			return e.rotateSplit(ct, k, name)
+		}
+	}
+	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -524,9 +534,17 @@ func (e *Evaluator) Mul(a, b *Ciphertext) *Ciphertext {
 }
 
 // Relinearize brings a degree-2 ciphertext back to degree 1 with the
-// relinearization key.
+// relinearization key. With several threads its key switch is split as
+// Rotate's is.
 func (e *Evaluator) Relinearize(ct *Ciphertext) *Ciphertext {
-	return e.do(func() string { return "relinearize" }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
+	name := func() string { return "relinearize" }
+	if e != nil && e.splits() {
+		if !e.start(name) {
+			return nil
+		}
+		return e.relinearizeSplit(ct, name)
+	}
+	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
