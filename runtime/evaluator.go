@@ -3,6 +3,7 @@ package runtime
 import (
 	"errors"
 	"fmt"
+	"sync/atomic"
 
 	"github.com/tuneinsight/lattigo/v5/core/rlwe"
 	"github.com/tuneinsight/lattigo/v5/he/hefloat"
@@ -350,8 +351,9 @@ func (e *Evaluator) hoistedSteps(ct *Ciphertext, steps []int) ([]int, error) {
 }
 
 // rotateHoistedTasks submits a hoisted rotation to the pool: one task
-// checks ct and decomposes it, then splits into one task per distinct step,
-// all reading that decomposition. Each step is computed as lattigo's
+// checks ct and decomposes it (in two tasks if it has several digits, see
+// decomposeTasks), then splits into one task per distinct step, all reading
+// that decomposition. Each step is computed as lattigo's
 // RotateHoisted computes it (DecomposeNTT, then AutomorphismHoisted with
 // the same arguments), so the results are bit-identical.
 func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphertext, name func() string) {
@@ -391,7 +393,7 @@ func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphe
 			for i := range decomp {
 				decomp[i] = ring.NewPoly()
 			}
-			l.ev.DecomposeNTT(level, levelP, hp.PCount(), in.Value[1], in.IsNTT, decomp)
+			var stepTasks []*task
 			for j, k := range ks {
 				var mine []*Ciphertext
 				for i, s := range steps {
@@ -399,8 +401,8 @@ func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphe
 						mine = append(mine, out[i])
 					}
 				}
-				galEl, sub := hp.GaloisElement(k), j+1
-				children = append(children, &task{seq: seq, sub: sub, outs: mine, run: func(l *lane) []*task {
+				galEl, sub := hp.GaloisElement(k), j+3
+				stepTasks = append(stepTasks, &task{seq: seq, sub: sub, outs: mine, run: func(l *lane) []*task {
 					err := func() (err error) {
 						defer recoverTo(&err, "")
 						r := hefloat.NewCiphertext(hp, 1, level)
@@ -418,6 +420,7 @@ func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphe
 					return nil
 				}})
 			}
+			children = e.decomposeTasks(l, seq, in, level, levelP, decomp, stepTasks, name)
 			return nil
 		}()
 		if err != nil {
@@ -431,6 +434,52 @@ func (e *Evaluator) rotateHoistedTasks(ct *Ciphertext, steps []int, out []*Ciphe
 		return children
 	}
 	q.submit(parent, ct)
+}
+
+// decomposeTasks decomposes in's second polynomial into decomp and then
+// hands over to the steps. A decomposition of one digit is made at once by
+// lane l, as lattigo's DecomposeNTT makes it, and the steps follow; one of
+// more digits is split in two halves of digits, two tasks that share the
+// polynomial taken out of the NTT domain here, and whichever finishes last
+// returns the steps. Each digit is computed by the same call either way
+// (DecomposeSingleNTT), so the decomposition is the same bit for bit.
+func (e *Evaluator) decomposeTasks(l *lane, seq int, in *rlwe.Ciphertext, level, levelP int, decomp []ringqp.Poly, steps []*task, name func() string) []*task {
+	hp := e.p.hp
+	d := len(decomp)
+	if d < 2 || !in.IsNTT {
+		l.ev.DecomposeNTT(level, levelP, hp.PCount(), in.Value[1], in.IsNTT, decomp)
+		return steps
+	}
+	q := e.pool
+	ringQ := hp.RingQ().AtLevel(level)
+	inv := ringQ.NewPoly()
+	ringQ.INTT(in.Value[1], inv)
+	var left atomic.Int32
+	left.Store(2)
+	halves := make([]*task, 2)
+	for h := range halves {
+		from, to := 0, (d+1)/2
+		if h == 1 {
+			from, to = to, d
+		}
+		halves[h] = &task{seq: seq, sub: 1 + h, run: func(l *lane) []*task {
+			err := func() (err error) {
+				defer recoverTo(&err, "")
+				for i := from; i < to; i++ {
+					l.ev.DecomposeSingleNTT(level, levelP, hp.PCount(), i, in.Value[1], inv, decomp[i].Q, decomp[i].P)
+				}
+				return nil
+			}()
+			if err != nil {
+				q.fail(seq, 1+h, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+			}
+			if left.Add(-1) == 0 {
+				return steps // even after a failure: they resolve their results
+			}
+			return nil
+		}}
+	}
+	return halves
 }
 
 // MulPlain multiplies ct by pt slot-wise. It does not rescale; the result's

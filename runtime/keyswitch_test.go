@@ -9,8 +9,9 @@ import (
 )
 
 // With several threads a lone rotation or relinearization is split into
-// tasks (keyswitch.go). The result must be the one-thread result bit for
-// bit, for one, two and three special primes (one, two or three digits
+// tasks (keyswitch.go), a hoisted rotation's decomposition into two halves
+// of digits and a rotate-sum's basis change into one task per polynomial.
+// The results must be the one-thread results bit for bit, for one, two and three special primes (one, two or three digits
 // fewer per key switch) and at every level, including levels whose
 // decomposition has a single digit, where the second half is empty.
 func TestSplitKeySwitchBitIdentical(t *testing.T) {
@@ -35,13 +36,21 @@ func TestSplitKeySwitchBitIdentical(t *testing.T) {
 				}
 				sq := one.Mul(x, x)
 				wantRot, wantRel := one.Rotate(x, 5), one.Relinearize(sq)
+				wantHoist := one.RotateHoisted(x, 1, 5)
+				wantSum := one.RotateSum([]*Ciphertext{x, x, x}, []int{0, 1, 5})
 				require.NoError(t, one.Err())
 				for _, threads := range []int{2, 3} {
 					before := goruntime.NumGoroutine()
 					ev := NewParallelEvaluator(p, evk, threads)
 					gotRot, gotRel := ev.Rotate(x, 5), ev.Relinearize(sq)
 					chain := ev.Rotate(ev.Rotate(x, 1), 5) // a split switch reading another's result
+					gotHoist := ev.RotateHoisted(x, 1, 5)
+					gotSum := ev.RotateSum([]*Ciphertext{x, x, x}, []int{0, 1, 5})
 					require.NoError(t, ev.Err(), "level %d, threads %d", level, threads)
+					for i := range wantHoist {
+						require.Equal(t, ctBytes(t, wantHoist[i]), ctBytes(t, gotHoist[i]), "hoisted %d, level %d, threads %d", i, level, threads)
+					}
+					require.Equal(t, ctBytes(t, wantSum), ctBytes(t, gotSum), "rotate-sum, level %d, threads %d", level, threads)
 					require.Equal(t, ctBytes(t, wantRot), ctBytes(t, gotRot), "rotation, level %d, threads %d", level, threads)
 					require.Equal(t, ctBytes(t, wantRel), ctBytes(t, gotRel), "relinearization, level %d, threads %d", level, threads)
 					require.Equal(t, ctBytes(t, one.Rotate(one.Rotate(x, 1), 5)), ctBytes(t, chain), "chain, level %d", level)

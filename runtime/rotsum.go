@@ -167,8 +167,28 @@ func (s *rotSum) term(l *lane, i int, dst *rlwe.Element[ringqp.Poly]) error {
 // combine adds the switched terms in QP, brings the sum down to Q and adds
 // the unrotated terms.
 func (s *rotSum) combine(l *lane, terms []*rlwe.Element[ringqp.Poly]) (*rlwe.Ciphertext, error) {
+	out := s.newOut()
+	for i := range 2 {
+		s.combinePoly(l, terms, i, out)
+	}
+	return out, nil
+}
+
+// newOut is the result ciphertext, at the terms' level and metadata.
+func (s *rotSum) newOut() *rlwe.Ciphertext {
+	out := hefloat.NewCiphertext(s.p.hp, 1, s.level())
+	*out.MetaData = *s.cts[0].ct.MetaData
+	return out
+}
+
+// combinePoly is combine for polynomial i of the pair: the switched terms'
+// polynomial i added in QP (into the first term's), brought down to Q as
+// lattigo's ModDown brings down each of its two, and the unrotated terms'
+// polynomial i added. The two polynomials touch disjoint memory.
+func (s *rotSum) combinePoly(l *lane, terms []*rlwe.Element[ringqp.Poly], i int, out *rlwe.Ciphertext) {
 	hp := s.p.hp
 	levelP := hp.MaxLevelP()
+	rqp := hp.RingQP().AtLevel(s.level(), levelP)
 	var acc *rlwe.Element[ringqp.Poly]
 	for _, t := range terms {
 		switch {
@@ -176,24 +196,18 @@ func (s *rotSum) combine(l *lane, terms []*rlwe.Element[ringqp.Poly]) (*rlwe.Cip
 		case acc == nil:
 			acc = t
 		default:
-			s.add(acc, t)
+			rqp.Add(acc.Value[i], t.Value[i], acc.Value[i])
 		}
 	}
-	out := hefloat.NewCiphertext(hp, 1, s.level())
 	if acc != nil {
-		l.ev.ModDown(s.level(), levelP, acc, out)
+		l.ev.ModDownQPtoQNTT(s.level(), levelP, acc.Value[i].Q, acc.Value[i].P, out.Value[i])
 	}
-	*out.MetaData = *s.cts[0].ct.MetaData
 	ringQ := hp.RingQ().AtLevel(s.level())
-	for i, g := range s.galEls {
-		if g != 0 {
-			continue
+	for j, g := range s.galEls {
+		if g == 0 {
+			ringQ.Add(out.Value[i], s.cts[j].ct.Value[i], out.Value[i])
 		}
-		in := s.cts[i].ct
-		ringQ.Add(out.Value[0], in.Value[0], out.Value[0])
-		ringQ.Add(out.Value[1], in.Value[1], out.Value[1])
 	}
-	return out, nil
 }
 
 // rotSumTasks submits a RotateSum to the pool: one task per rotated term,
@@ -241,7 +255,8 @@ func (e *Evaluator) rotSumTasks(cts []*Ciphertext, steps []int, name func() stri
 			return nil
 		}}, cts[0], cts[i])
 	}
-	q.submit(&task{seq: seq, sub: len(cts) + 1, outs: []*Ciphertext{res}, run: func(l *lane) []*task {
+	combiner := &task{seq: seq, sub: len(cts) + 1, outs: []*Ciphertext{res}}
+	combiner.run = func(l *lane) []*task {
 		// Check the unrotated terms even after a failure: the pool keeps
 		// the failure of the lowest term.
 		for i, g := range s.galEls {
@@ -256,16 +271,45 @@ func (e *Evaluator) rotSumTasks(cts []*Ciphertext, steps []int, name func() stri
 		if failed.Load() {
 			return nil
 		}
+		// The two polynomials are brought down by two tasks; the one that
+		// finishes last hands the result over.
+		var out *rlwe.Ciphertext
 		err := func() (err error) {
 			defer recoverTo(&err, "")
-			res.ct, err = s.combine(l, terms)
-			return err
+			out = s.newOut()
+			return nil
 		}()
 		if err != nil {
-			res.ct = nil
 			q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+			return nil
 		}
-		return nil
-	}}, deps...)
+		var left atomic.Int32
+		left.Store(2)
+		combiner.outs = nil
+		polys := make([]*task, 2)
+		for i := range polys {
+			polys[i] = &task{seq: seq, sub: len(cts) + 2 + i}
+			polys[i].run = func(l *lane) []*task {
+				err := func() (err error) {
+					defer recoverTo(&err, "")
+					s.combinePoly(l, terms, i, out)
+					return nil
+				}()
+				if err != nil {
+					failed.Store(true)
+					q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+				}
+				if left.Add(-1) == 0 {
+					if !failed.Load() && err == nil {
+						res.ct = out
+					}
+					polys[i].outs = []*Ciphertext{res}
+				}
+				return nil
+			}
+		}
+		return polys
+	}
+	q.submit(combiner, deps...)
 	return res
 }
