@@ -128,8 +128,8 @@ func keyBudget(s *State) error {
 	composeRotations(p, g, rotationUses(p))
 	rep.Steps = usedSteps(p) // the keys the rewritten program uses, a subset of keys
 	rep.Added = rotationCount(p) - rotationCount(exact)
-	s.note("key budget %.1f MB: %d rotation keys %v instead of %d (%.1f MB instead of %.1f MB); %d rotations composed from them, %d key switches more, about %.1f ms more (estimated)",
-		mb(limit), len(rep.Steps), rep.Steps, len(steps), mb(size(len(rep.Steps))), mb(size(len(steps))), rep.Composed, rep.Added, extraMS)
+	s.note("key budget %.1f MB: %d rotation keys %v instead of %d (%.1f MB instead of %.1f MB, relinearization key included, each key made for the highest level it is used at); %d rotations composed from them, %d key switches more, about %.1f ms more (estimated)",
+		mb(limit), len(rep.Steps), rep.Steps, len(steps), mb(keyFileBytes(p.Params, stepLevels(p, rep.Steps), relin)), mb(keyFileBytes(p.Params, stepLevels(exact, steps), relin)), rep.Composed, rep.Added, extraMS)
 	if nested > 0 {
 		s.note("key budget: %d sums of rotations nested (Σ rot_k(b) as b1 + rot(b2 + rot(…)), so that they rotate by the differences of their steps", nested)
 	}
