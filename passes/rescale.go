@@ -21,8 +21,8 @@ import (
 // rescaled scale, which chooseParams accounts for (foldNoiseFactor).
 //
 // A layer is rescaled before its folds only where that does not cost a
-// larger ring, a larger rescaled scale under pinned parameters, or a
-// failure to find parameters at all (foldFirstLayers).
+// larger ring, fewer special primes, a larger rescaled scale under pinned
+// parameters, or a failure to find parameters at all (foldFirstLayers).
 func placeRescale(s *State) error {
 	place(s, s.Prog, foldFirstLayers(s))
 	return nil
@@ -32,7 +32,8 @@ func placeRescale(s *State) error {
 // places the rescales on a copy of the program with the rule in every
 // layer, and takes it back from the layer with the most folds after its
 // rescale, one layer at a time, while the parameters chosen for the noise
-// this adds (setParams) need a larger ring than without it, or, under a
+// this adds (setParams) need a larger ring than without it or leave room
+// for fewer special primes (withSpecials), or, under a
 // pinned scale or chain, while it asks for a larger scale than the one
 // without it (the pin cannot grow: the precision would fall short), or
 // while no parameters fit where they did without it.
@@ -50,13 +51,23 @@ func foldFirstLayers(s *State) map[int]bool {
 		return allow
 	}
 	terms := noiseTerms(s.Graph)
+	pin := s.Graph.Pin
 	params := func(folds []int) (ir.Params, error) {
 		q := *c
 		err := setParams(s, &q, folds, terms)
 		return q.Params, err
 	}
+	// The special primes the ring's spare bits would buy (withSpecials):
+	// a larger scale leaves fewer, and dearer key switches everywhere
+	// outweigh cheaper folds.
+	specials := func(pr ir.Params) int {
+		c, err := withSpecials(pr, s.profile(), s.Opts.Objective)
+		if err != nil || s.Opts.Naive || (pin != nil && len(pin.LogP) > 0) {
+			return len(pr.LogP)
+		}
+		return len(c.LogP)
+	}
 	base, baseErr := params(nil)
-	pin := s.Graph.Pin
 	pinned := pin != nil && (pin.LogScale != 0 || len(pin.LogQ) > 0)
 	for len(allow) > 0 {
 		kept := make([]int, len(folds))
@@ -70,7 +81,7 @@ func foldFirstLayers(s *State) map[int]bool {
 			grows = g1 > g0
 		} else {
 			pr, err := params(kept)
-			grows = err != nil && baseErr == nil || err == nil && baseErr == nil && pr.LogN > base.LogN
+			grows = err != nil && baseErr == nil || err == nil && baseErr == nil && (pr.LogN > base.LogN || specials(pr) < specials(base))
 		}
 		if !grows {
 			break

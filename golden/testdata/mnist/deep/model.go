@@ -22,7 +22,7 @@ type Plaintexts struct {
 	Conv1Diag56       *runtime.Plaintext  // level 9, scale q9
 	Conv1Diag57       *runtime.Plaintext  // level 9, scale q9
 	Conv1Diag58       *runtime.Plaintext  // level 9, scale q9
-	Conv1Bias         *runtime.Plaintext  // level 9, scale 2^34·q9
+	Conv1Bias         *runtime.Plaintext  // level 9, scale 2^31·q9
 	Relu1Poly         *runtime.Polynomial // chebyshev basis, degree 7
 	Pool1Dense1Diag0  *runtime.Plaintext  // level 5, scale q5
 	Pool1Dense1Diag1  *runtime.Plaintext  // level 5, scale q5
@@ -88,7 +88,7 @@ type Plaintexts struct {
 	Pool1Dense1Diag61 *runtime.Plaintext  // level 5, scale q5
 	Pool1Dense1Diag62 *runtime.Plaintext  // level 5, scale q5
 	Pool1Dense1Diag63 *runtime.Plaintext  // level 5, scale q5
-	Pool1Dense1Bias   *runtime.Plaintext  // level 4, scale 2^34
+	Pool1Dense1Bias   *runtime.Plaintext  // level 5, scale 2^31·q5
 	Relu2Poly         *runtime.Polynomial // chebyshev basis, degree 7
 	Dense2Diag0       *runtime.Plaintext  // level 1, scale q1
 	Dense2Diag1       *runtime.Plaintext  // level 1, scale q1
@@ -106,7 +106,7 @@ type Plaintexts struct {
 	Dense2Diag13      *runtime.Plaintext  // level 1, scale q1
 	Dense2Diag14      *runtime.Plaintext  // level 1, scale q1
 	Dense2Diag15      *runtime.Plaintext  // level 1, scale q1
-	Dense2Bias        *runtime.Plaintext  // level 0, scale 2^34
+	Dense2Bias        *runtime.Plaintext  // level 0, scale 2^31
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -133,7 +133,7 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Conv1Diag56 = enc.Multiplier("conv1.diag56", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8192)
 	pt.Conv1Diag57 = enc.Multiplier("conv1.diag57", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8192)
 	pt.Conv1Diag58 = enc.Multiplier("conv1.diag58", 9, runtime.Scale{Pow2: 0, Num: []int{9}}, 8192)
-	pt.Conv1Bias = enc.Plaintext("conv1.bias", 9, runtime.Scale{Pow2: 34, Num: []int{9}}, 8192)
+	pt.Conv1Bias = enc.Plaintext("conv1.bias", 9, runtime.Scale{Pow2: 31, Num: []int{9}}, 8192)
 	pt.Relu1Poly = enc.Polynomial("relu1.poly", runtime.Chebyshev)
 	pt.Pool1Dense1Diag0 = enc.Multiplier("pool1_dense1.diag0", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 8192)
 	pt.Pool1Dense1Diag1 = enc.Multiplier("pool1_dense1.diag1", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 8192)
@@ -199,7 +199,7 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Pool1Dense1Diag61 = enc.Multiplier("pool1_dense1.diag61", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 8192)
 	pt.Pool1Dense1Diag62 = enc.Multiplier("pool1_dense1.diag62", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 8192)
 	pt.Pool1Dense1Diag63 = enc.Multiplier("pool1_dense1.diag63", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 8192)
-	pt.Pool1Dense1Bias = enc.Plaintext("pool1_dense1.bias", 4, runtime.Scale{Pow2: 34}, 8192)
+	pt.Pool1Dense1Bias = enc.Plaintext("pool1_dense1.bias", 5, runtime.Scale{Pow2: 31, Num: []int{5}}, 8192)
 	pt.Relu2Poly = enc.Polynomial("relu2.poly", runtime.Chebyshev)
 	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
 	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
@@ -217,7 +217,7 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Dense2Diag13 = enc.Multiplier("dense2.diag13", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
 	pt.Dense2Diag14 = enc.Multiplier("dense2.diag14", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
 	pt.Dense2Diag15 = enc.Multiplier("dense2.diag15", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
-	pt.Dense2Bias = enc.Plaintext("dense2.bias", 0, runtime.Scale{Pow2: 34}, 8192)
+	pt.Dense2Bias = enc.Plaintext("dense2.bias", 0, runtime.Scale{Pow2: 31}, 8192)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -230,14 +230,14 @@ func Load(params *runtime.Params) (*Model, error) {
 // straight-line, one statement per ciphertext operation; ev keeps the first
 // error and every later operation does nothing, so it is checked once.
 //
-// The input must be at level 9 and scale 2^34, as Encrypt makes it.
+// The input must be at level 9 and scale 2^31, as Encrypt makes it.
 func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
 	if len(x) != 1 {
 		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
 	}
 	image := x[0]
 	pt := m.pt
-	ev.Expect(image, 9, runtime.Scale{Pow2: 34})
+	ev.Expect(image, 9, runtime.Scale{Pow2: 31})
 
 	// deep.yaml:33:5 conv1: linear 784→6272 from conv1 (conv2d 3×3 stride 1×1) · norm1 (batchnorm, folded) · level 9→8 · 4 rotations (2 hoisted) · baby-step giant-step 4×2048 · 9 plaintext multiplications · 1 rescale
 	imageHoisted := ev.RotateHoisted(image, 1, 2)
@@ -262,7 +262,7 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	conv1OutRescaled := ev.Rescale(conv1Out)
 
 	// deep.yaml:45:5 relu1: relu (chebyshev, degree 7) · level 8→5 · 3 levels in the polynomial
-	relu1Out := ev.Poly(conv1OutRescaled, pt.Relu1Poly, runtime.Scale{Pow2: 34})
+	relu1Out := ev.Poly(conv1OutRescaled, pt.Relu1Poly, runtime.Scale{Pow2: 31})
 
 	// deep.yaml:50:5 pool1_dense1: linear 6272→64 from pool1 (avgpool 2×2 stride 2×2) · dense1 (dense) · norm2 (batchnorm, folded) (in blocks of 64) · level 5→4 · 21 rotations (7 hoisted) · baby-step giant-step 8×1024 · 64 plaintext multiplications · 1 rescale
 	relu1OutHoisted := ev.RotateHoisted(relu1Out, 1, 2, 3, 4, 5, 6, 7)
@@ -303,9 +303,8 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 		[]*runtime.Ciphertext{pool1Dense1Block0Sum7, pool1Dense1Block8Sum7, pool1Dense1Block16Sum7, pool1Dense1Block24Sum7, pool1Dense1Block32Sum7, pool1Dense1Block40Sum7, pool1Dense1Block48Sum7, pool1Dense1Block56Sum7},
 		[]int{0, 8, 16, 24, 32, 40, 48, 56},
 	)
-	pool1Dense1Acc56Rescaled := ev.Rescale(pool1Dense1Acc56)
-	pool1Dense1Fold64Rot := ev.Rotate(pool1Dense1Acc56Rescaled, 64)
-	pool1Dense1Folded64 := ev.Add(pool1Dense1Acc56Rescaled, pool1Dense1Fold64Rot)
+	pool1Dense1Fold64Rot := ev.Rotate(pool1Dense1Acc56, 64)
+	pool1Dense1Folded64 := ev.Add(pool1Dense1Acc56, pool1Dense1Fold64Rot)
 	pool1Dense1Fold128Rot := ev.Rotate(pool1Dense1Folded64, 128)
 	pool1Dense1Folded128 := ev.Add(pool1Dense1Folded64, pool1Dense1Fold128Rot)
 	pool1Dense1Fold256Rot := ev.Rotate(pool1Dense1Folded128, 256)
@@ -319,9 +318,10 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	pool1Dense1Fold4096Rot := ev.Rotate(pool1Dense1Folded2048, 4096)
 	pool1Dense1Folded4096 := ev.Add(pool1Dense1Folded2048, pool1Dense1Fold4096Rot)
 	pool1Dense1Out := ev.AddPlain(pool1Dense1Folded4096, pt.Pool1Dense1Bias)
+	pool1Dense1OutRescaled := ev.Rescale(pool1Dense1Out)
 
 	// deep.yaml:64:5 relu2: relu (chebyshev, degree 7) · level 4→1 · 3 levels in the polynomial
-	relu2Out := ev.Poly(pool1Dense1Out, pt.Relu2Poly, runtime.Scale{Pow2: 34})
+	relu2Out := ev.Poly(pool1Dense1OutRescaled, pt.Relu2Poly, runtime.Scale{Pow2: 31})
 
 	// deep.yaml:69:5 dense2: dense 64→10 (in blocks of 16, over the input's period 64) · level 1→0 · 8 rotations (3 hoisted) · baby-step giant-step 4×2048 · 16 plaintext multiplications · 1 rescale
 	relu2OutHoisted := ev.RotateHoisted(relu2Out, 1, 2, 3)

@@ -16,23 +16,23 @@ var _ = runtime.APIVersion1
 // primes Q (q0 first; one level per prime after q0), the key-switching primes
 // P and the default scale 2^LogScale.
 //
-// Security: log2(QP) = 436. The largest log2(QP) for 128-bit classical security
+// Security: log2(QP) = 431. The largest log2(QP) for 128-bit classical security
 // at ring degree 2^14 is 438, according to the HomomorphicEncryption.org Security Standard (2018), Table 1: 128-bit classical security, uniform ternary secret, error σ = 3.2.
 // This estimate follows the standard's table only; it is not an audit.
 // Have a qualified cryptographer review any deployment.
 //
 // How the planner chose them:
 //   - depth 9: the longest chain of rescales and polynomial levels
-//   - scale 2^34: 12 bits of precision asked, noise and its growth through the model (gain 1.04e+03; noise of pool1_dense1 ×16 for 7 folds after its rescale, dense2 ×2.65 for 2 folds after its rescale)
-//   - q0 of 44 bits: outputs up to 108 at the default scale (interval arithmetic over the declared input range)
-//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 401 and 8192 slots hold the period 8192
-//   - P of 2 primes [43 43]: key switches in digits of 2 ciphertext primes (the largest 78 bits), priced 20% cheaper than with one special prime, within the bound: log2(QP) = 436 of 438
+//   - scale 2^31: 12 bits of precision asked, noise and its growth through the model (gain 192; noise of dense2 ×2.65 for 2 folds after its rescale)
+//   - q0 of 41 bits: outputs up to 108 at the default scale (interval arithmetic over the declared input range)
+//   - logN 14: smallest ring whose 128-bit bound (438) holds log2(QP) = 368 and 8192 slots hold the period 8192
+//   - P of 3 primes [37 37 37]: key switches in digits of 3 ciphertext primes (the largest 103 bits), priced 30% cheaper than with one special prime, within the bound: log2(QP) = 431 of 438
 var ParamSpec = runtime.ParamSpec{
 	LogN:     14,
-	Q:        []uint64{17592186175489, 17179967489, 17179672577, 17180262401, 17180295169, 17180393473, 17179410433, 17180557313, 17180950529, 17178525697},
-	P:        []uint64{8796092858369, 8796092792833},
-	LogScale: 34,
-	ModelID:  "198fc97c54be8bddaad6231f855a6c0c",
+	Q:        []uint64{2199023288321, 2147352577, 2146959361, 2146336769, 2148728833, 2148794369, 2146041857, 2145976321, 2149810177, 2150072321},
+	P:        []uint64{137438822401, 137438691329, 137439510529},
+	LogScale: 31,
+	ModelID:  "934384ec947ef74843d238285a4e85c3",
 }
 
 // Keys lists the evaluation keys the server needs: a Galois key for each rotation
@@ -40,7 +40,7 @@ var ParamSpec = runtime.ParamSpec{
 // same order), and the relinearization key if it multiplies ciphertexts.
 var Keys = runtime.KeyRequest{
 	Rotations:   []int{1, 2, 3, 4, 5, 6, 7, 8, 12, 16, 24, 28, 32, 40, 48, 56, 64, 128, 256, 512, 1024, 2048, 4096},
-	Levels:      []int{9, 9, 5, 5, 5, 5, 5, 5, 1, 5, 5, 9, 5, 5, 5, 9, 4, 4, 4, 4, 4, 4, 4},
+	Levels:      []int{9, 9, 5, 5, 5, 5, 5, 5, 1, 5, 5, 9, 5, 5, 5, 9, 5, 5, 5, 5, 5, 5, 5},
 	Relinearize: true,
 }
 
@@ -62,6 +62,6 @@ func Info() runtime.ModelInfo {
 		Keys:       Keys,
 		Insecure:   false,
 		Precision:  12,
-		Result:     &runtime.LevelScale{Level: 0, Scale: runtime.Scale{Pow2: 34}},
+		Result:     &runtime.LevelScale{Level: 0, Scale: runtime.Scale{Pow2: 31}},
 	}
 }

@@ -31,12 +31,12 @@ type Plaintexts struct {
 	ConvDiag5      *runtime.Plaintext // level 3, scale q3
 	ConvDiag6      *runtime.Plaintext // level 3, scale q3
 	ConvDiag7      *runtime.Plaintext // level 3, scale q3
-	ConvBias       *runtime.Plaintext // level 3, scale 2^33·q3
-	Pool1HeadDiag0 *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Pool1HeadDiag1 *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Pool1HeadDiag2 *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Pool1HeadDiag3 *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Pool1HeadBias  *runtime.Plaintext // level 0, scale 2^33
+	ConvBias       *runtime.Plaintext // level 3, scale 2^32·q3
+	Pool1HeadDiag0 *runtime.Plaintext // level 1, scale 2^-32·q1·q2
+	Pool1HeadDiag1 *runtime.Plaintext // level 1, scale 2^-32·q1·q2
+	Pool1HeadDiag2 *runtime.Plaintext // level 1, scale 2^-32·q1·q2
+	Pool1HeadDiag3 *runtime.Plaintext // level 1, scale 2^-32·q1·q2
+	Pool1HeadBias  *runtime.Plaintext // level 1, scale 2^32·q1
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -72,12 +72,12 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.ConvDiag5 = enc.Multiplier("conv.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag6 = enc.Multiplier("conv.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
 	pt.ConvDiag7 = enc.Multiplier("conv.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 128)
-	pt.ConvBias = enc.Plaintext("conv.bias", 3, runtime.Scale{Pow2: 33, Num: []int{3}}, 128)
-	pt.Pool1HeadDiag0 = enc.Multiplier("pool1_head.diag0", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadDiag1 = enc.Multiplier("pool1_head.diag1", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadDiag2 = enc.Multiplier("pool1_head.diag2", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadDiag3 = enc.Multiplier("pool1_head.diag3", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 128)
-	pt.Pool1HeadBias = enc.Plaintext("pool1_head.bias", 0, runtime.Scale{Pow2: 33}, 128)
+	pt.ConvBias = enc.Plaintext("conv.bias", 3, runtime.Scale{Pow2: 32, Num: []int{3}}, 128)
+	pt.Pool1HeadDiag0 = enc.Multiplier("pool1_head.diag0", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag1 = enc.Multiplier("pool1_head.diag1", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag2 = enc.Multiplier("pool1_head.diag2", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadDiag3 = enc.Multiplier("pool1_head.diag3", 1, runtime.Scale{Pow2: -32, Num: []int{1, 2}}, 128)
+	pt.Pool1HeadBias = enc.Plaintext("pool1_head.bias", 1, runtime.Scale{Pow2: 32, Num: []int{1}}, 128)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -90,14 +90,14 @@ func Load(params *runtime.Params) (*Model, error) {
 // straight-line, one statement per ciphertext operation; ev keeps the first
 // error and every later operation does nothing, so it is checked once.
 //
-// The input must be at level 3 and scale 2^33, as Encrypt makes it.
+// The input must be at level 3 and scale 2^32, as Encrypt makes it.
 func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
 	if len(x) != 1 {
 		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
 	}
 	image := x[0]
 	pt := m.pt
-	ev.Expect(image, 3, runtime.Scale{Pow2: 33})
+	ev.Expect(image, 3, runtime.Scale{Pow2: 32})
 
 	// conv_small.yaml:16:5 conv: linear 36→72 from conv (conv2d 3×3 stride 1×1) · norm (batchnorm, folded) · level 3→2 · 7 rotations (2 hoisted) · baby-step giant-step 3×43 · 18 plaintext multiplications · 1 rescale
 	imageHoisted := ev.RotateHoisted(image, 127, 1)
@@ -151,9 +151,8 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	)
 	pool1HeadBlock2Rot := ev.Rotate(pool1HeadBlock2Sum, 2)
 	pool1HeadAcc2 := ev.Add(pool1HeadBlock0Sum, pool1HeadBlock2Rot)
-	pool1HeadAcc2Rescaled := ev.Rescale(pool1HeadAcc2)
-	pool1HeadFold4Rot := ev.Rotate(pool1HeadAcc2Rescaled, 4)
-	pool1HeadFolded4 := ev.Add(pool1HeadAcc2Rescaled, pool1HeadFold4Rot)
+	pool1HeadFold4Rot := ev.Rotate(pool1HeadAcc2, 4)
+	pool1HeadFolded4 := ev.Add(pool1HeadAcc2, pool1HeadFold4Rot)
 	pool1HeadFold8Rot := ev.Rotate(pool1HeadFolded4, 8)
 	pool1HeadFolded8 := ev.Add(pool1HeadFolded4, pool1HeadFold8Rot)
 	pool1HeadFold16Rot := ev.Rotate(pool1HeadFolded8, 16)
@@ -163,6 +162,7 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	pool1HeadFold64Rot := ev.Rotate(pool1HeadFolded32, 64)
 	pool1HeadFolded64 := ev.Add(pool1HeadFolded32, pool1HeadFold64Rot)
 	pool1HeadOut := ev.AddPlain(pool1HeadFolded64, pt.Pool1HeadBias)
+	pool1HeadOutRescaled := ev.Rescale(pool1HeadOut)
 
-	return []*runtime.Ciphertext{pool1HeadOut}, ev.Err()
+	return []*runtime.Ciphertext{pool1HeadOutRescaled}, ev.Err()
 }
