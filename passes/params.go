@@ -3,8 +3,10 @@ package passes
 import (
 	"fmt"
 	"math"
+	"math/bits"
 	"math/rand/v2"
 	"slices"
+	"strings"
 
 	"github.com/lanthorn/lanthorn/ir"
 	"github.com/lanthorn/lanthorn/runtime"
@@ -18,12 +20,20 @@ import (
 // prime at least as large as every other prime bounds key-switching noise.
 // The ring degree is the smallest whose 128-bit bound holds log2(QP) and
 // whose slots hold the layout's period. Spec pins override each choice.
+//
+// The gain counts the extra noise of layers folded after their rescale
+// (foldsAfterRescale, foldNoiseFactors).
 func chooseParams(s *State) error {
-	p := s.Prog
+	return setParams(s, s.Prog, foldsAfterRescale(s.Prog, s.Graph), noiseTerms(s.Graph))
+}
+
+// setParams is chooseParams for program p with the given fold counts per
+// layer and noise terms (noiseTerms); it sets p.Params.
+func setParams(s *State, p *ir.Program, folds []int, terms []float64) error {
 	g := s.Graph
 	depth := programDepth(p)
 	bounds := valueBounds(g)
-	gain := noiseGain(g)
+	gain := weightedGain(terms, foldNoiseFactors(folds))
 	pin := g.Pin
 	if pin == nil {
 		pin = &ir.ParamPin{}
@@ -84,6 +94,18 @@ func chooseParams(s *State) error {
 		if pin.LogN == 0 && (!inTable || sum > bound) {
 			continue // try the next ring degree
 		}
+		if pin.LogN == 0 {
+			// The primes lie near 2^b on either side: one just above 2^b
+			// has b+1 bits. Bound the chain by the bits of the primes
+			// themselves, a sum that is never below log2(QP).
+			q, pp, err := runtime.GeneratePrimes(logN, logQ, logP)
+			if err != nil {
+				return fmt.Errorf("params: %w", err)
+			}
+			if primeBits(q)+primeBits(pp) > bound {
+				continue
+			}
+		}
 		chosen = cand
 		break
 	}
@@ -113,13 +135,22 @@ func chooseParams(s *State) error {
 	}
 	c.Q, c.P = q, pp
 	why = append(why,
-		fmt.Sprintf("scale 2^%d: %d bits of precision asked, noise and its growth through the model (gain %.3g)", c.LogScale, g.Precision, gain),
+		fmt.Sprintf("scale 2^%d: %d bits of precision asked, noise and its growth through the model (gain %.3g%s)", c.LogScale, g.Precision, gain, describeFolds(g, folds)),
 		fmt.Sprintf("q0 of %d bits: outputs up to %.3g at the default scale (interval arithmetic over the declared input range)", c.LogQ[0], outBound),
 		fmt.Sprintf("logN %d: smallest ring whose 128-bit bound (%d) holds log2(QP) = %d and %d slots hold the period %d",
 			c.LogN, c.SecurityBound, c.LogQP, 1<<(c.LogN-1), p.Period))
 	c.Why = why
 	p.Params = *c
 	return nil
+}
+
+// primeBits is the sum of the bit lengths of the primes.
+func primeBits(primes []uint64) int {
+	n := 0
+	for _, q := range primes {
+		n += bits.Len64(q)
+	}
+	return n
 }
 
 // programDepth is the number of levels the program consumes.
@@ -156,15 +187,23 @@ func levelsUsed(p *ir.Program) []int {
 }
 
 // noiseGain estimates how much the errors that encryption adds grow by the
-// time they reach the output: Σ_k g_k, where g_k is the largest observed
-// ratio |Δoutput|∞ / ε when every value after layer k (k = 0: the input) is
-// perturbed by ±ε, over inputs drawn from the declared input range, times
-// two for safety. Bounds by interval arithmetic (products of ∞-norms) are
-// far too pessimistic for real models and would double the ring degree.
-func noiseGain(g *ir.Graph) float64 {
+// time they reach the output: Σ_k 2·g_k·m_k, where g_k is the largest
+// observed ratio |Δoutput|∞ / ε when every value after layer k (k = 0: the
+// input) is perturbed by ±ε, over inputs drawn from the declared input
+// range, the 2 is for safety, and m_k (factor[k], 1 where factor is short)
+// is how many times one rescale's noise the encrypted value after layer k
+// carries (foldNoiseFactors). Bounds by interval arithmetic (products of
+// ∞-norms) are far too pessimistic for real models and would double the
+// ring degree.
+func noiseGain(g *ir.Graph, factor []float64) float64 {
+	return weightedGain(noiseTerms(g), factor)
+}
+
+// noiseTerms are the terms 2·g_k of noiseGain, k = 0 … len(g.Layers).
+func noiseTerms(g *ir.Graph) []float64 {
 	r := rand.New(rand.NewPCG(0x6e6f697365, 1)) // fixed seed: builds are reproducible
 	const samples, eps = 24, 1e-7
-	var total float64
+	terms := make([]float64, 0, len(g.Layers)+1)
 	for k := 0; k <= len(g.Layers); k++ {
 		worst := 1e-3
 		for range samples {
@@ -182,9 +221,120 @@ func noiseGain(g *ir.Graph) float64 {
 				worst = math.Max(worst, math.Abs(a[i]-b[i])/eps)
 			}
 		}
-		total += 2 * worst
+		terms = append(terms, 2*worst)
+	}
+	return terms
+}
+
+// weightedGain is Σ_k terms[k]·factor[k] (factor 1 where factor is short),
+// at least 1.
+func weightedGain(terms, factor []float64) float64 {
+	var total float64
+	for k, t := range terms {
+		m := 1.0
+		if k < len(factor) {
+			m = factor[k]
+		}
+		total += t * m
 	}
 	return math.Max(total, 1)
+}
+
+// foldsAfterRescale counts, for every graph layer, the fold rotations its
+// output goes through after its rescale (placeRescale rescales a folded
+// product before its folds): the longest chain v → v + rot(v) → … that
+// starts at a rescale of one of the layer's ops (the most over the
+// layer's output chunks). It reads the program as the rescale pass leaves
+// it (rotations and additions, before sum-rotations merges anything). The
+// program's layers are the graph's, in order (lower makes one LayerInfo
+// per graph layer, and each op's Layer indexes them); a program that does
+// not have them (the selection's stand-in of a given depth, which has no
+// layers) counts none.
+func foldsAfterRescale(p *ir.Program, g *ir.Graph) []int {
+	if len(p.Layers) != len(g.Layers) {
+		return nil
+	}
+	folds := make([]int, len(g.Layers))
+	for _, op := range p.Ops {
+		if op.Kind != ir.OpRescale || op.Layer < 0 || op.Layer >= len(folds) {
+			continue
+		}
+		n, v := 0, op.Results[0]
+		for {
+			w, ok := foldOf(p, v)
+			if !ok {
+				break
+			}
+			n, v = n+1, w
+		}
+		folds[op.Layer] = max(folds[op.Layer], n)
+	}
+	return folds
+}
+
+// foldOf returns the sum v + rot(v), if the program forms one.
+func foldOf(p *ir.Program, v ir.ValueID) (ir.ValueID, bool) {
+	for _, u := range uses(p, v) {
+		if u.Kind != ir.OpRotate {
+			continue
+		}
+		for _, w := range uses(p, u.Results[0]) {
+			if w.Kind == ir.OpAdd && slices.Contains(w.Args, v) {
+				return w.Results[0], true
+			}
+		}
+	}
+	return 0, false
+}
+
+// foldNoiseFactors maps fold counts per graph layer (foldsAfterRescale) to
+// the factors of noiseGain, indexed by boundary k = layer + 1.
+//
+// A layer rescaled after its folds carries one rescale's rounding noise, of
+// standard deviation σ: the folds' key switches add their noise at Δ·q,
+// where the rescale divides it by q. Rescaled before its f folds, it
+// carries σ² of variance from the rescale; each fold x + rot(x) adds two
+// copies of the noise so far, which sit in different slots and are taken
+// as independent, and one key switch's noise, taken as σ² (the special
+// primes are sized so that a key switch adds no more than a rescale, see
+// chooseParams): v_0 = σ², v_i = 2·v_{i-1} + σ², so v_f = (2^(f+1) − 1)·σ².
+// The factor is the ratio of standard deviations, sqrt(2^(f+1) − 1): the
+// root-mean-square growth of a sum of independent equal noises (common
+// practice; the per-boundary terms themselves are added as magnitudes).
+func foldNoiseFactors(folds []int) []float64 {
+	if len(folds) == 0 {
+		return nil
+	}
+	out := make([]float64, len(folds)+1)
+	out[0] = 1 // the input: fresh encryption noise, no fold
+	for i, f := range folds {
+		out[i+1] = foldNoiseFactor(f)
+	}
+	return out
+}
+
+// foldNoiseFactor is sqrt(2^(f+1) − 1), 1 for no fold (foldNoiseFactors).
+func foldNoiseFactor(f int) float64 {
+	return math.Sqrt(math.Ldexp(1, f+1) - 1)
+}
+
+// describeFolds names, for the plan's scale line, the layers whose noise
+// is multiplied for folds after their rescale.
+func describeFolds(g *ir.Graph, folds []int) string {
+	var parts []string
+	for i, f := range folds {
+		if f > 0 {
+			noun := "folds"
+			if f == 1 {
+				noun = "fold"
+			}
+			parts = append(parts, fmt.Sprintf("%s ×%.3g for %d %s after its rescale", g.Layers[i].Name, foldNoiseFactor(f), f, noun))
+		}
+	}
+	if len(parts) == 0 {
+		return ""
+	}
+	return "; noise of " + strings.Join(parts, ", ")
 }
 
 // forward runs a chain of (folded) layers in float64.

@@ -39,9 +39,9 @@ type Plaintexts struct {
 	Dense2Diag5  *runtime.Plaintext  // level 3, scale q3
 	Dense2Diag6  *runtime.Plaintext  // level 3, scale q3
 	Dense2Diag7  *runtime.Plaintext  // level 3, scale q3
-	Dense2Bias   *runtime.Plaintext  // level 3, scale 2^40·q3
+	Dense2Bias   *runtime.Plaintext  // level 2, scale 2^40
 	Dense3Diag0  *runtime.Plaintext  // level 1, scale 2^-40·q1·q2
-	Dense3Bias   *runtime.Plaintext  // level 1, scale 2^40·q1
+	Dense3Bias   *runtime.Plaintext  // level 0, scale 2^40
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -85,9 +85,9 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Dense2Diag5 = enc.Multiplier("dense2.diag5", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
 	pt.Dense2Diag6 = enc.Multiplier("dense2.diag6", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
 	pt.Dense2Diag7 = enc.Multiplier("dense2.diag7", 3, runtime.Scale{Pow2: 0, Num: []int{3}}, 16)
-	pt.Dense2Bias = enc.Plaintext("dense2.bias", 3, runtime.Scale{Pow2: 40, Num: []int{3}}, 16)
+	pt.Dense2Bias = enc.Plaintext("dense2.bias", 2, runtime.Scale{Pow2: 40}, 16)
 	pt.Dense3Diag0 = enc.Multiplier("dense3.diag0", 1, runtime.Scale{Pow2: -40, Num: []int{1, 2}}, 16)
-	pt.Dense3Bias = enc.Plaintext("dense3.bias", 1, runtime.Scale{Pow2: 40, Num: []int{1}}, 16)
+	pt.Dense3Bias = enc.Plaintext("dense3.bias", 0, runtime.Scale{Pow2: 40}, 16)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -161,26 +161,26 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 		[]*runtime.Ciphertext{dense2Block0Sum, dense2Block2Sum, dense2Block4Sum, dense2Block6Sum},
 		[]int{0, 2, 4, 6},
 	)
-	dense2Fold8Rot := ev.Rotate(dense2Acc6, 8)
-	dense2Folded8 := ev.Add(dense2Acc6, dense2Fold8Rot)
+	dense2Acc6Rescaled := ev.Rescale(dense2Acc6)
+	dense2Fold8Rot := ev.Rotate(dense2Acc6Rescaled, 8)
+	dense2Folded8 := ev.Add(dense2Acc6Rescaled, dense2Fold8Rot)
 	dense2Out := ev.AddPlain(dense2Folded8, pt.Dense2Bias)
-	dense2OutRescaled := ev.Rescale(dense2Out)
 
 	// gearbox.yaml:70:5 act2: square · level 2→1 · 1 ciphertext multiplication · 1 relinearization · 1 rescale
-	act2Sq := ev.Mul(dense2OutRescaled, dense2OutRescaled)
+	act2Sq := ev.Mul(dense2Out, dense2Out)
 	act2SqRelin := ev.Relinearize(act2Sq)
 	act2SqRelinRescaled := ev.Rescale(act2SqRelin)
 
 	// gearbox.yaml:73:5 dense3: dense 8→1 (in blocks of 1, over the input's period 8) · level 1→0 · 3 rotations · baby-step giant-step 1×16 · 1 plaintext multiplication · 1 rescale
 	dense3Prod0 := ev.MulPlain(act2SqRelinRescaled, pt.Dense3Diag0)
-	dense3Fold1Rot := ev.Rotate(dense3Prod0, 1)
-	dense3Folded1 := ev.Add(dense3Prod0, dense3Fold1Rot)
+	dense3Prod0Rescaled := ev.Rescale(dense3Prod0)
+	dense3Fold1Rot := ev.Rotate(dense3Prod0Rescaled, 1)
+	dense3Folded1 := ev.Add(dense3Prod0Rescaled, dense3Fold1Rot)
 	dense3Fold2Rot := ev.Rotate(dense3Folded1, 2)
 	dense3Folded2 := ev.Add(dense3Folded1, dense3Fold2Rot)
 	dense3Fold4Rot := ev.Rotate(dense3Folded2, 4)
 	dense3Folded4 := ev.Add(dense3Folded2, dense3Fold4Rot)
 	dense3Out := ev.AddPlain(dense3Folded4, pt.Dense3Bias)
-	dense3OutRescaled := ev.Rescale(dense3Out)
 
-	return []*runtime.Ciphertext{dense3OutRescaled}, ev.Err()
+	return []*runtime.Ciphertext{dense3Out}, ev.Err()
 }

@@ -106,7 +106,7 @@ type Plaintexts struct {
 	Dense2Diag13      *runtime.Plaintext  // level 1, scale q1
 	Dense2Diag14      *runtime.Plaintext  // level 1, scale q1
 	Dense2Diag15      *runtime.Plaintext  // level 1, scale q1
-	Dense2Bias        *runtime.Plaintext  // level 1, scale 2^31·q1
+	Dense2Bias        *runtime.Plaintext  // level 0, scale 2^31
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -217,7 +217,7 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Dense2Diag13 = enc.Multiplier("dense2.diag13", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
 	pt.Dense2Diag14 = enc.Multiplier("dense2.diag14", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
 	pt.Dense2Diag15 = enc.Multiplier("dense2.diag15", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8192)
-	pt.Dense2Bias = enc.Plaintext("dense2.bias", 1, runtime.Scale{Pow2: 31, Num: []int{1}}, 8192)
+	pt.Dense2Bias = enc.Plaintext("dense2.bias", 0, runtime.Scale{Pow2: 31}, 8192)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -346,12 +346,12 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 		[]*runtime.Ciphertext{dense2Block0Sum3, dense2Block4Sum3, dense2Block8Sum3, dense2Block12Sum3},
 		[]int{0, 4, 8, 12},
 	)
-	dense2Fold16Rot := ev.Rotate(dense2Acc12, 16)
-	dense2Folded16 := ev.Add(dense2Acc12, dense2Fold16Rot)
+	dense2Acc12Rescaled := ev.Rescale(dense2Acc12)
+	dense2Fold16Rot := ev.Rotate(dense2Acc12Rescaled, 16)
+	dense2Folded16 := ev.Add(dense2Acc12Rescaled, dense2Fold16Rot)
 	dense2Fold32Rot := ev.Rotate(dense2Folded16, 32)
 	dense2Folded32 := ev.Add(dense2Folded16, dense2Fold32Rot)
 	dense2Out := ev.AddPlain(dense2Folded32, pt.Dense2Bias)
-	dense2OutRescaled := ev.Rescale(dense2Out)
 
-	return []*runtime.Ciphertext{dense2OutRescaled}, ev.Err()
+	return []*runtime.Ciphertext{dense2Out}, ev.Err()
 }

@@ -38,57 +38,57 @@ type Plaintexts struct {
 	Conv1Diag85   *runtime.Plaintext // level 5, scale q5
 	Conv1Diag86   *runtime.Plaintext // level 5, scale q5
 	Conv1Diag87   *runtime.Plaintext // level 5, scale q5
-	Conv1Bias     *runtime.Plaintext // level 5, scale 2^33·q5
-	Dense1Diag0   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag4   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag8   *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag12  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag16  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag20  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag24  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag28  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag32  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag36  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag40  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag44  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag48  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag52  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag56  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag60  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag64  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag68  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag72  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag76  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag80  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag84  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag88  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag92  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag96  *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag100 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag104 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag108 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag112 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag116 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag120 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Diag124 *runtime.Plaintext // level 3, scale 2^-33·q3·q4
-	Dense1Bias    *runtime.Plaintext // level 3, scale 2^33·q3
-	Dense2Diag0   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag1   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag2   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag3   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag4   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag5   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag6   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag7   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag8   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag9   *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag10  *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag11  *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag12  *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag13  *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag14  *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Diag15  *runtime.Plaintext // level 1, scale 2^-33·q1·q2
-	Dense2Bias    *runtime.Plaintext // level 1, scale 2^33·q1
+	Conv1Bias     *runtime.Plaintext // level 5, scale 2^34·q5
+	Dense1Diag0   *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag4   *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag8   *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag12  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag16  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag20  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag24  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag28  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag32  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag36  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag40  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag44  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag48  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag52  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag56  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag60  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag64  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag68  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag72  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag76  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag80  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag84  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag88  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag92  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag96  *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag100 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag104 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag108 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag112 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag116 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag120 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Diag124 *runtime.Plaintext // level 3, scale 2^-34·q3·q4
+	Dense1Bias    *runtime.Plaintext // level 2, scale 2^34
+	Dense2Diag0   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag1   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag2   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag3   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag4   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag5   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag6   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag7   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag8   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag9   *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag10  *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag11  *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag12  *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag13  *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag14  *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Diag15  *runtime.Plaintext // level 1, scale 2^-34·q1·q2
+	Dense2Bias    *runtime.Plaintext // level 0, scale 2^34
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -131,57 +131,57 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Conv1Diag85 = enc.Multiplier("conv1.diag85", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 4096)
 	pt.Conv1Diag86 = enc.Multiplier("conv1.diag86", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 4096)
 	pt.Conv1Diag87 = enc.Multiplier("conv1.diag87", 5, runtime.Scale{Pow2: 0, Num: []int{5}}, 4096)
-	pt.Conv1Bias = enc.Plaintext("conv1.bias", 5, runtime.Scale{Pow2: 33, Num: []int{5}}, 4096)
-	pt.Dense1Diag0 = enc.Multiplier("dense1.diag0", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag4 = enc.Multiplier("dense1.diag4", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag8 = enc.Multiplier("dense1.diag8", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag12 = enc.Multiplier("dense1.diag12", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag16 = enc.Multiplier("dense1.diag16", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag20 = enc.Multiplier("dense1.diag20", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag24 = enc.Multiplier("dense1.diag24", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag28 = enc.Multiplier("dense1.diag28", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag32 = enc.Multiplier("dense1.diag32", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag36 = enc.Multiplier("dense1.diag36", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag40 = enc.Multiplier("dense1.diag40", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag44 = enc.Multiplier("dense1.diag44", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag48 = enc.Multiplier("dense1.diag48", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag52 = enc.Multiplier("dense1.diag52", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag56 = enc.Multiplier("dense1.diag56", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag60 = enc.Multiplier("dense1.diag60", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag64 = enc.Multiplier("dense1.diag64", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag68 = enc.Multiplier("dense1.diag68", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag72 = enc.Multiplier("dense1.diag72", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag76 = enc.Multiplier("dense1.diag76", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag80 = enc.Multiplier("dense1.diag80", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag84 = enc.Multiplier("dense1.diag84", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag88 = enc.Multiplier("dense1.diag88", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag92 = enc.Multiplier("dense1.diag92", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag96 = enc.Multiplier("dense1.diag96", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag100 = enc.Multiplier("dense1.diag100", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag104 = enc.Multiplier("dense1.diag104", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag108 = enc.Multiplier("dense1.diag108", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag112 = enc.Multiplier("dense1.diag112", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag116 = enc.Multiplier("dense1.diag116", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag120 = enc.Multiplier("dense1.diag120", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Diag124 = enc.Multiplier("dense1.diag124", 3, runtime.Scale{Pow2: -33, Num: []int{3, 4}}, 4096)
-	pt.Dense1Bias = enc.Plaintext("dense1.bias", 3, runtime.Scale{Pow2: 33, Num: []int{3}}, 4096)
-	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag2 = enc.Multiplier("dense2.diag2", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag3 = enc.Multiplier("dense2.diag3", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag4 = enc.Multiplier("dense2.diag4", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag5 = enc.Multiplier("dense2.diag5", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag6 = enc.Multiplier("dense2.diag6", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag7 = enc.Multiplier("dense2.diag7", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag8 = enc.Multiplier("dense2.diag8", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag9 = enc.Multiplier("dense2.diag9", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag10 = enc.Multiplier("dense2.diag10", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag11 = enc.Multiplier("dense2.diag11", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag12 = enc.Multiplier("dense2.diag12", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag13 = enc.Multiplier("dense2.diag13", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag14 = enc.Multiplier("dense2.diag14", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Diag15 = enc.Multiplier("dense2.diag15", 1, runtime.Scale{Pow2: -33, Num: []int{1, 2}}, 4096)
-	pt.Dense2Bias = enc.Plaintext("dense2.bias", 1, runtime.Scale{Pow2: 33, Num: []int{1}}, 4096)
+	pt.Conv1Bias = enc.Plaintext("conv1.bias", 5, runtime.Scale{Pow2: 34, Num: []int{5}}, 4096)
+	pt.Dense1Diag0 = enc.Multiplier("dense1.diag0", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag4 = enc.Multiplier("dense1.diag4", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag8 = enc.Multiplier("dense1.diag8", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag12 = enc.Multiplier("dense1.diag12", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag16 = enc.Multiplier("dense1.diag16", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag20 = enc.Multiplier("dense1.diag20", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag24 = enc.Multiplier("dense1.diag24", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag28 = enc.Multiplier("dense1.diag28", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag32 = enc.Multiplier("dense1.diag32", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag36 = enc.Multiplier("dense1.diag36", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag40 = enc.Multiplier("dense1.diag40", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag44 = enc.Multiplier("dense1.diag44", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag48 = enc.Multiplier("dense1.diag48", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag52 = enc.Multiplier("dense1.diag52", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag56 = enc.Multiplier("dense1.diag56", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag60 = enc.Multiplier("dense1.diag60", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag64 = enc.Multiplier("dense1.diag64", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag68 = enc.Multiplier("dense1.diag68", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag72 = enc.Multiplier("dense1.diag72", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag76 = enc.Multiplier("dense1.diag76", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag80 = enc.Multiplier("dense1.diag80", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag84 = enc.Multiplier("dense1.diag84", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag88 = enc.Multiplier("dense1.diag88", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag92 = enc.Multiplier("dense1.diag92", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag96 = enc.Multiplier("dense1.diag96", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag100 = enc.Multiplier("dense1.diag100", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag104 = enc.Multiplier("dense1.diag104", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag108 = enc.Multiplier("dense1.diag108", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag112 = enc.Multiplier("dense1.diag112", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag116 = enc.Multiplier("dense1.diag116", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag120 = enc.Multiplier("dense1.diag120", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Diag124 = enc.Multiplier("dense1.diag124", 3, runtime.Scale{Pow2: -34, Num: []int{3, 4}}, 4096)
+	pt.Dense1Bias = enc.Plaintext("dense1.bias", 2, runtime.Scale{Pow2: 34}, 4096)
+	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag2 = enc.Multiplier("dense2.diag2", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag3 = enc.Multiplier("dense2.diag3", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag4 = enc.Multiplier("dense2.diag4", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag5 = enc.Multiplier("dense2.diag5", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag6 = enc.Multiplier("dense2.diag6", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag7 = enc.Multiplier("dense2.diag7", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag8 = enc.Multiplier("dense2.diag8", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag9 = enc.Multiplier("dense2.diag9", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag10 = enc.Multiplier("dense2.diag10", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag11 = enc.Multiplier("dense2.diag11", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag12 = enc.Multiplier("dense2.diag12", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag13 = enc.Multiplier("dense2.diag13", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag14 = enc.Multiplier("dense2.diag14", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Diag15 = enc.Multiplier("dense2.diag15", 1, runtime.Scale{Pow2: -34, Num: []int{1, 2}}, 4096)
+	pt.Dense2Bias = enc.Plaintext("dense2.bias", 0, runtime.Scale{Pow2: 34}, 4096)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -194,14 +194,14 @@ func Load(params *runtime.Params) (*Model, error) {
 // straight-line, one statement per ciphertext operation; ev keeps the first
 // error and every later operation does nothing, so it is checked once.
 //
-// The input must be at level 5 and scale 2^33, as Encrypt makes it.
+// The input must be at level 5 and scale 2^34, as Encrypt makes it.
 func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*runtime.Ciphertext, error) {
 	if len(x) != 1 {
 		return nil, fmt.Errorf("%d input ciphertexts, the model takes 1", len(x))
 	}
 	image := x[0]
 	pt := m.pt
-	ev.Expect(image, 5, runtime.Scale{Pow2: 33})
+	ev.Expect(image, 5, runtime.Scale{Pow2: 34})
 
 	// digits.yaml:18:5 conv1: linear 784→3920 from conv1 (conv2d 5×5 stride 2×2) · level 5→4 · 8 rotations (4 hoisted) · baby-step giant-step 7×586 · 25 plaintext multiplications · 1 rescale
 	imageHoisted := ev.RotateHoisted(image, 4095, 1, 2, 3)
@@ -282,8 +282,9 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 		[]*runtime.Ciphertext{dense1Block0Sum3, dense1Block16Sum3, dense1Block32Sum3, dense1Block48Sum3, dense1Block64Sum3, dense1Block80Sum3, dense1Block96Sum3, dense1Block112Sum3},
 		[]int{0, 16, 32, 48, 64, 80, 96, 112},
 	)
-	dense1Fold128Rot := ev.Rotate(dense1Acc112, 128)
-	dense1Folded128 := ev.Add(dense1Acc112, dense1Fold128Rot)
+	dense1Acc112Rescaled := ev.Rescale(dense1Acc112)
+	dense1Fold128Rot := ev.Rotate(dense1Acc112Rescaled, 128)
+	dense1Folded128 := ev.Add(dense1Acc112Rescaled, dense1Fold128Rot)
 	dense1Fold256Rot := ev.Rotate(dense1Folded128, 256)
 	dense1Folded256 := ev.Add(dense1Folded128, dense1Fold256Rot)
 	dense1Fold512Rot := ev.Rotate(dense1Folded256, 512)
@@ -293,10 +294,9 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	dense1Fold2048Rot := ev.Rotate(dense1Folded1024, 2048)
 	dense1Folded2048 := ev.Add(dense1Folded1024, dense1Fold2048Rot)
 	dense1Out := ev.AddPlain(dense1Folded2048, pt.Dense1Bias)
-	dense1OutRescaled := ev.Rescale(dense1Out)
 
 	// digits.yaml:36:5 square2: square · level 2→1 · 1 ciphertext multiplication · 1 relinearization · 1 rescale
-	square2Sq := ev.Mul(dense1OutRescaled, dense1OutRescaled)
+	square2Sq := ev.Mul(dense1Out, dense1Out)
 	square2SqRelin := ev.Relinearize(square2Sq)
 	square2SqRelinRescaled := ev.Rescale(square2SqRelin)
 
@@ -323,14 +323,14 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 		[]*runtime.Ciphertext{dense2Block0Sum3, dense2Block4Sum3, dense2Block8Sum3, dense2Block12Sum3},
 		[]int{0, 4, 8, 12},
 	)
-	dense2Fold16Rot := ev.Rotate(dense2Acc12, 16)
-	dense2Folded16 := ev.Add(dense2Acc12, dense2Fold16Rot)
+	dense2Acc12Rescaled := ev.Rescale(dense2Acc12)
+	dense2Fold16Rot := ev.Rotate(dense2Acc12Rescaled, 16)
+	dense2Folded16 := ev.Add(dense2Acc12Rescaled, dense2Fold16Rot)
 	dense2Fold32Rot := ev.Rotate(dense2Folded16, 32)
 	dense2Folded32 := ev.Add(dense2Folded16, dense2Fold32Rot)
 	dense2Fold64Rot := ev.Rotate(dense2Folded32, 64)
 	dense2Folded64 := ev.Add(dense2Folded32, dense2Fold64Rot)
 	dense2Out := ev.AddPlain(dense2Folded64, pt.Dense2Bias)
-	dense2OutRescaled := ev.Rescale(dense2Out)
 
-	return []*runtime.Ciphertext{dense2OutRescaled}, ev.Err()
+	return []*runtime.Ciphertext{dense2Out}, ev.Err()
 }

@@ -27,11 +27,9 @@ type Plaintexts struct {
 	MixDiag1    *runtime.Plaintext  // level 4, scale q4
 	MixDiag2    *runtime.Plaintext  // level 4, scale q4
 	MixDiag3    *runtime.Plaintext  // level 4, scale q4
-	MixBias     *runtime.Plaintext  // level 4, scale 2^35·q4
+	MixBias     *runtime.Plaintext  // level 3, scale 2^35
 	BendPoly    *runtime.Polynomial // monomial basis, degree 2
 	HeadDiag0   *runtime.Plaintext  // level 1, scale q1
-	HeadDiag1   *runtime.Plaintext  // level 1, scale q1
-	HeadDiag2   *runtime.Plaintext  // level 1, scale q1
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -63,11 +61,9 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.MixDiag1 = enc.Multiplier("mix.diag1", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
 	pt.MixDiag2 = enc.Multiplier("mix.diag2", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
 	pt.MixDiag3 = enc.Multiplier("mix.diag3", 4, runtime.Scale{Pow2: 0, Num: []int{4}}, 8)
-	pt.MixBias = enc.Plaintext("mix.bias", 4, runtime.Scale{Pow2: 35, Num: []int{4}}, 8)
+	pt.MixBias = enc.Plaintext("mix.bias", 3, runtime.Scale{Pow2: 35}, 8)
 	pt.BendPoly = enc.Polynomial("bend.poly", runtime.Monomial)
 	pt.HeadDiag0 = enc.Multiplier("head.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
-	pt.HeadDiag1 = enc.Multiplier("head.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
-	pt.HeadDiag2 = enc.Multiplier("head.diag2", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 8)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -131,23 +127,21 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	)
 	mixBlock2Rot := ev.Rotate(mixBlock2Sum, 2)
 	mixAcc2 := ev.Add(mixBlock0Sum, mixBlock2Rot)
-	mixFold4Rot := ev.Rotate(mixAcc2, 4)
-	mixFolded4 := ev.Add(mixAcc2, mixFold4Rot)
+	mixAcc2Rescaled := ev.Rescale(mixAcc2)
+	mixFold4Rot := ev.Rotate(mixAcc2Rescaled, 4)
+	mixFolded4 := ev.Add(mixAcc2Rescaled, mixFold4Rot)
 	mixOut := ev.AddPlain(mixFolded4, pt.MixBias)
-	mixOutRescaled := ev.Rescale(mixOut)
 
 	// relu_poly.yaml:37:5 bend: poly (monomial, degree 2) · level 3→1 · 2 levels in the polynomial
-	bendOut := ev.Poly(mixOutRescaled, pt.BendPoly, runtime.Scale{Pow2: 35})
+	bendOut := ev.Poly(mixOut, pt.BendPoly, runtime.Scale{Pow2: 35})
 
-	// relu_poly.yaml:41:5 head: dense 3→1 · level 1→0 · 2 rotations · baby-step giant-step 1×8 · 3 plaintext multiplications · 1 rescale
+	// relu_poly.yaml:41:5 head: dense 3→1 (in blocks of 1, over the input's period 4) · level 1→0 · 2 rotations · baby-step giant-step 1×8 · 1 plaintext multiplication · 1 rescale
 	headProd0 := ev.MulPlain(bendOut, pt.HeadDiag0)
-	headProd1 := ev.MulPlain(bendOut, pt.HeadDiag1)
-	headProd2 := ev.MulPlain(bendOut, pt.HeadDiag2)
-	headAcc2 := ev.RotateSum(
-		[]*runtime.Ciphertext{headProd0, headProd1, headProd2},
-		[]int{0, 1, 2},
-	)
-	headAcc2Rescaled := ev.Rescale(headAcc2)
+	headProd0Rescaled := ev.Rescale(headProd0)
+	headFold1Rot := ev.Rotate(headProd0Rescaled, 1)
+	headFolded1 := ev.Add(headProd0Rescaled, headFold1Rot)
+	headFold2Rot := ev.Rotate(headFolded1, 2)
+	headFolded2 := ev.Add(headFolded1, headFold2Rot)
 
-	return []*runtime.Ciphertext{headAcc2Rescaled}, ev.Err()
+	return []*runtime.Ciphertext{headFolded2}, ev.Err()
 }

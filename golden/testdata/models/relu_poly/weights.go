@@ -18,7 +18,7 @@ var weightsBlob []byte
 
 // WeightsSHA256 is the SHA-256 of weights.bin, checked before any weight is read.
 // A change of weights shows in review as a change of this line.
-const WeightsSHA256 = "f8d3f94b6b8710f23a2ee809d2f96c03a906482cd27a8eba3f970d0314f64fd9"
+const WeightsSHA256 = "6ef690fca0f83ecd3bb1d8cf0a992e9b96327e5a2c9d22d27e01a400c584a5e8"
 
 // LoadWeights checks the embedded blob against WeightsSHA256 and parses it.
 func LoadWeights() (*runtime.Weights, error) {

@@ -26,7 +26,7 @@ type Plaintexts struct {
 	HeadDiag1   *runtime.Plaintext  // level 4, scale 2^-31·q4·q5
 	HeadDiag2   *runtime.Plaintext  // level 4, scale 2^-31·q4·q5
 	HeadDiag3   *runtime.Plaintext  // level 4, scale 2^-31·q4·q5
-	HeadBias    *runtime.Plaintext  // level 4, scale 2^31·q4
+	HeadBias    *runtime.Plaintext  // level 3, scale 2^31
 	SquashPoly  *runtime.Polynomial // chebyshev basis, degree 7
 	SquashUnpad *runtime.Plaintext  // level 0, scale 2^31
 }
@@ -59,7 +59,7 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.HeadDiag1 = enc.Multiplier("head.diag1", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
 	pt.HeadDiag2 = enc.Multiplier("head.diag2", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
 	pt.HeadDiag3 = enc.Multiplier("head.diag3", 4, runtime.Scale{Pow2: -31, Num: []int{4, 5}}, 8)
-	pt.HeadBias = enc.Plaintext("head.bias", 4, runtime.Scale{Pow2: 31, Num: []int{4}}, 8)
+	pt.HeadBias = enc.Plaintext("head.bias", 3, runtime.Scale{Pow2: 31}, 8)
 	pt.SquashPoly = enc.Polynomial("squash.poly", runtime.Chebyshev)
 	pt.SquashUnpad = enc.Plaintext("squash.unpad", 0, runtime.Scale{Pow2: 31}, 8)
 	if err := enc.Err(); err != nil {
@@ -127,13 +127,13 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	)
 	headBlock2Rot := ev.Rotate(headBlock2Sum, 2)
 	headAcc2 := ev.Add(headBlock0Sum, headBlock2Rot)
-	headFold4Rot := ev.Rotate(headAcc2, 4)
-	headFolded4 := ev.Add(headAcc2, headFold4Rot)
+	headAcc2Rescaled := ev.Rescale(headAcc2)
+	headFold4Rot := ev.Rotate(headAcc2Rescaled, 4)
+	headFolded4 := ev.Add(headAcc2Rescaled, headFold4Rot)
 	headOut := ev.AddPlain(headFolded4, pt.HeadBias)
-	headOutRescaled := ev.Rescale(headOut)
 
 	// sigmoid_head.yaml:43:5 squash: sigmoid (chebyshev, degree 7) · p(0) zeroed in padding (no level) · level 3→0 · 3 levels in the polynomial
-	squashOut := ev.Poly(headOutRescaled, pt.SquashPoly, runtime.Scale{Pow2: 31})
+	squashOut := ev.Poly(headOut, pt.SquashPoly, runtime.Scale{Pow2: 31})
 	squashOutUnpadded := ev.AddPlain(squashOut, pt.SquashUnpad)
 
 	return []*runtime.Ciphertext{squashOutUnpadded}, ev.Err()

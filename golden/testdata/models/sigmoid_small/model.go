@@ -21,9 +21,7 @@ type Plaintexts struct {
 	Act1Poly    *runtime.Polynomial // chebyshev basis, degree 7
 	Dense2Diag0 *runtime.Plaintext  // level 1, scale q1
 	Dense2Diag1 *runtime.Plaintext  // level 1, scale q1
-	Dense2Diag2 *runtime.Plaintext  // level 1, scale q1
-	Dense2Diag3 *runtime.Plaintext  // level 1, scale q1
-	Dense2Bias  *runtime.Plaintext  // level 1, scale 2^31·q1
+	Dense2Bias  *runtime.Plaintext  // level 0, scale 2^31
 }
 
 // Model is the compiled model, ready to evaluate.
@@ -49,9 +47,7 @@ func Load(params *runtime.Params) (*Model, error) {
 	pt.Act1Poly = enc.Polynomial("act1.poly", runtime.Chebyshev)
 	pt.Dense2Diag0 = enc.Multiplier("dense2.diag0", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 4)
 	pt.Dense2Diag1 = enc.Multiplier("dense2.diag1", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 4)
-	pt.Dense2Diag2 = enc.Multiplier("dense2.diag2", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 4)
-	pt.Dense2Diag3 = enc.Multiplier("dense2.diag3", 1, runtime.Scale{Pow2: 0, Num: []int{1}}, 4)
-	pt.Dense2Bias = enc.Plaintext("dense2.bias", 1, runtime.Scale{Pow2: 31, Num: []int{1}}, 4)
+	pt.Dense2Bias = enc.Plaintext("dense2.bias", 0, runtime.Scale{Pow2: 31}, 4)
 	if err := enc.Err(); err != nil {
 		return nil, fmt.Errorf("encode weights: %w", err)
 	}
@@ -92,21 +88,15 @@ func (m *Model) Evaluate(ev *runtime.Evaluator, x []*runtime.Ciphertext) ([]*run
 	// sigmoid_small.yaml:20:5 act1: sigmoid (chebyshev, degree 7) · level 4→1 · 3 levels in the polynomial
 	act1Out := ev.Poly(dense1OutRescaled, pt.Act1Poly, runtime.Scale{Pow2: 31})
 
-	// sigmoid_small.yaml:23:5 dense2: dense 4→2 · level 1→0 · 2 rotations · baby-step giant-step 2×2 · 4 plaintext multiplications · 1 rescale
-	act1OutHoisted := ev.RotateHoisted(act1Out, 1)
-	dense2Rot1 := act1OutHoisted[0]
-	dense2Block0Sum := ev.DotPlain(
-		[]*runtime.Ciphertext{act1Out, dense2Rot1},
-		[]*runtime.Plaintext{pt.Dense2Diag0, pt.Dense2Diag1},
-	)
-	dense2Block2Sum := ev.DotPlain(
-		[]*runtime.Ciphertext{act1Out, dense2Rot1},
-		[]*runtime.Plaintext{pt.Dense2Diag2, pt.Dense2Diag3},
-	)
-	dense2Block2Rot := ev.Rotate(dense2Block2Sum, 2)
-	dense2Acc2 := ev.Add(dense2Block0Sum, dense2Block2Rot)
-	dense2Out := ev.AddPlain(dense2Acc2, pt.Dense2Bias)
-	dense2OutRescaled := ev.Rescale(dense2Out)
+	// sigmoid_small.yaml:23:5 dense2: dense 4→2 (in blocks of 2) · level 1→0 · 2 rotations · baby-step giant-step 1×4 · 2 plaintext multiplications · 1 rescale
+	dense2Prod0 := ev.MulPlain(act1Out, pt.Dense2Diag0)
+	dense2Prod1 := ev.MulPlain(act1Out, pt.Dense2Diag1)
+	dense2Block1Rot := ev.Rotate(dense2Prod1, 1)
+	dense2Acc1 := ev.Add(dense2Prod0, dense2Block1Rot)
+	dense2Acc1Rescaled := ev.Rescale(dense2Acc1)
+	dense2Fold2Rot := ev.Rotate(dense2Acc1Rescaled, 2)
+	dense2Folded2 := ev.Add(dense2Acc1Rescaled, dense2Fold2Rot)
+	dense2Out := ev.AddPlain(dense2Folded2, pt.Dense2Bias)
 
-	return []*runtime.Ciphertext{dense2OutRescaled}, ev.Err()
+	return []*runtime.Ciphertext{dense2Out}, ev.Err()
 }

@@ -18,7 +18,7 @@ var weightsBlob []byte
 
 // WeightsSHA256 is the SHA-256 of weights.bin, checked before any weight is read.
 // A change of weights shows in review as a change of this line.
-const WeightsSHA256 = "f11b56eed62854f7118909e2831ee3eb85fe5aa56f80620c28c38069bf17a355"
+const WeightsSHA256 = "cb9ee4ba3479c7e4a380ec7c8b6e97f1164897c344800143adf4ea069818e347"
 
 // LoadWeights checks the embedded blob against WeightsSHA256 and parses it.
 func LoadWeights() (*runtime.Weights, error) {
