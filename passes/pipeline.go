@@ -39,7 +39,7 @@ var Pipeline = []Pass{
 	{Name: "relinearize", Run: placeRelinearize, Required: true, Stage: ir.Relinearized,
 		Why: "bring every ciphertext product back to degree 1 before it is rotated, multiplied or returned"},
 	{Name: "rescale", Run: placeRescale, Required: true, Stage: ir.Relinearized,
-		Why: "rescale once per layer, after its products are summed, before the value is multiplied again"},
+		Why: "rescale once per layer, after its products are summed (before the folds of a blocked layer, where the noise allows), before the value is multiplied again"},
 	{Name: "params", Run: chooseParams, Required: true, Stage: ir.Placed,
 		Why: "pick the smallest ring degree whose 128-bit bound holds the modulus chain the depth and precision need"},
 	{Name: "levels", Run: assignLevels, Required: true, Stage: ir.Leveled,
