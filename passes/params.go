@@ -3,10 +3,10 @@ package passes
 import (
 	"fmt"
 	"math"
-	"math/bits"
 	"math/rand/v2"
 	"slices"
 	"strings"
+	"sync"
 
 	"github.com/lanthorn/lanthorn/ir"
 	"github.com/lanthorn/lanthorn/runtime"
@@ -95,14 +95,13 @@ func setParams(s *State, p *ir.Program, folds []int, terms []float64) error {
 			continue // try the next ring degree
 		}
 		if pin.LogN == 0 {
-			// The primes lie near 2^b on either side: one just above 2^b
-			// has b+1 bits. Bound the chain by the bits of the primes
-			// themselves, a sum that is never below log2(QP).
-			q, pp, err := runtime.GeneratePrimes(logN, logQ, logP)
+			// The primes lie near 2^b on either side: bound log2 of
+			// their product, not the sum of the b.
+			q, pp, err := generatePrimes(logN, logQ, logP)
 			if err != nil {
 				return fmt.Errorf("params: %w", err)
 			}
-			if primeBits(q)+primeBits(pp) > bound {
+			if log2Product(q)+log2Product(pp) > float64(bound) {
 				continue
 			}
 		}
@@ -129,7 +128,7 @@ func setParams(s *State, p *ir.Program, folds []int, terms []float64) error {
 		c.Insecure = true
 		why = append(why, "INSECURE: the spec accepts parameters above the 128-bit bound")
 	}
-	q, pp, err := runtime.GeneratePrimes(c.LogN, c.LogQ, c.LogP)
+	q, pp, err := generatePrimes(c.LogN, c.LogQ, c.LogP)
 	if err != nil {
 		return fmt.Errorf("params: %w", err)
 	}
@@ -144,13 +143,45 @@ func setParams(s *State, p *ir.Program, folds []int, terms []float64) error {
 	return nil
 }
 
-// primeBits is the sum of the bit lengths of the primes.
-func primeBits(primes []uint64) int {
-	n := 0
-	for _, q := range primes {
-		n += bits.Len64(q)
+// generatePrimes is runtime.GeneratePrimes, remembered: the selection
+// compiles many variants whose chains repeat, and the primality tests
+// dominate a compilation otherwise. The function is deterministic.
+func generatePrimes(logN int, logQ, logP []int) (q, p []uint64, err error) {
+	key := fmt.Sprint(logN, logQ, logP)
+	primesMemo.Lock()
+	r, ok := primesMemo.m[key]
+	primesMemo.Unlock()
+	if !ok {
+		r.q, r.p, r.err = runtime.GeneratePrimes(logN, logQ, logP)
+		primesMemo.Lock()
+		if primesMemo.m == nil {
+			primesMemo.m = map[string]primeSet{}
+		}
+		primesMemo.m[key] = r
+		primesMemo.Unlock()
 	}
-	return n
+	return slices.Clone(r.q), slices.Clone(r.p), r.err
+}
+
+type primeSet struct {
+	q, p []uint64
+	err  error
+}
+
+var primesMemo struct {
+	sync.Mutex
+	m map[string]primeSet
+}
+
+// log2Product is log2 of the product of the primes: the quantity the
+// standard's table bounds (log2 of the modulus QP). A prime just above 2^b
+// adds a little more than b.
+func log2Product(primes []uint64) float64 {
+	t := 0.0
+	for _, q := range primes {
+		t += math.Log2(float64(q))
+	}
+	return t
 }
 
 // programDepth is the number of levels the program consumes.

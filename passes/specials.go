@@ -5,7 +5,6 @@ import (
 	"slices"
 
 	"github.com/lanthorn/lanthorn/ir"
-	"github.com/lanthorn/lanthorn/runtime"
 )
 
 // maxSpecialBits is the largest special prime lattigo takes.
@@ -76,6 +75,13 @@ func withSpecials(pr ir.Params, prof *Profile, obj Objective) (ir.Params, error)
 		if c.LogQP > c.SecurityBound {
 			continue
 		}
+		// As params does: log2 of the product of the primes themselves
+		// within the bound.
+		q, pp, err := generatePrimes(c.LogN, c.LogQ, c.LogP)
+		if err != nil || log2Product(q)+log2Product(pp) > float64(c.SecurityBound) {
+			continue
+		}
+		c.Q, c.P = q, pp
 		ms, keys := price(c)
 		better := ms < bestMS
 		if obj == KeyBytes {
@@ -88,11 +94,6 @@ func withSpecials(pr ir.Params, prof *Profile, obj Objective) (ir.Params, error)
 	if len(best.LogP) == 1 {
 		return pr, nil
 	}
-	q, pp, err := runtime.GeneratePrimes(best.LogN, best.LogQ, best.LogP)
-	if err != nil {
-		return pr, fmt.Errorf("special-primes: %w", err)
-	}
-	best.Q, best.P = q, pp
 	best.Why = append(slices.Clone(pr.Why), fmt.Sprintf(
 		"P of %d primes %v: key switches in digits of %d ciphertext primes (the largest %d bits), priced %.0f%% cheaper than with one special prime, within the bound: log2(QP) = %d of %d",
 		len(best.LogP), best.LogP, len(best.LogP), largestDigit(best.LogQ, len(best.LogP)), 100*(1-bestMS/first), best.LogQP, best.SecurityBound))
