@@ -610,7 +610,14 @@ func (e *Evaluator) Relinearize(ct *Ciphertext) *Ciphertext {
 // Rescale divides ct by q_level, the prime of its level, exactly: the level
 // drops by one and the scale is divided by that prime.
 func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
-	return e.do(func() string { return "rescale" }, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
+	name := func() string { return "rescale" }
+	if e != nil && e.splits() {
+		if !e.start(name) {
+			return nil
+		}
+		return e.rescaleSplit(ct, name)
+	}
+	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
 		if err := e.check(ct); err != nil {
 			return nil, err
 		}
@@ -623,6 +630,68 @@ func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
 		}
 		return out, nil
 	})
+}
+
+// rescaleSplit is Rescale as pool tasks, one per polynomial of ct: each
+// divides its polynomial by the last prime as lattigo's Rescale does
+// (DivRoundByLastModulusManyNTT), so the result is the same bit for bit;
+// the last to finish hands it over.
+func (e *Evaluator) rescaleSplit(ct *Ciphertext, name func() string) *Ciphertext {
+	q, seq := e.pool, e.ops
+	res := q.newFuture()
+	parent := &task{seq: seq, outs: []*Ciphertext{res}}
+	parent.run = func(*lane) []*task {
+		var out *rlwe.Ciphertext
+		err := func() (err error) {
+			defer recoverTo(&err, "")
+			if err := e.check(ct); err != nil {
+				return err
+			}
+			if ct.Level() < 1 {
+				return errors.New("rescale needs level > 0, ciphertext is at level 0")
+			}
+			in := ct.ct
+			out = hefloat.NewCiphertext(e.p.hp, in.Degree(), in.Level()-1)
+			*out.MetaData = *in.MetaData
+			out.Scale = in.Scale.Div(rlwe.NewScale(e.p.hp.RingQ().SubRings[in.Level()].Modulus))
+			return nil
+		}()
+		if err != nil {
+			q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+			return nil
+		}
+		parent.outs = nil
+		in := ct.ct
+		children := make([]*task, len(in.Value))
+		var left atomic.Int32
+		var failed atomic.Bool
+		left.Store(int32(len(children)))
+		for i := range children {
+			children[i] = &task{seq: seq, sub: 1 + i}
+			children[i].run = func(l *lane) []*task {
+				err := func() (err error) {
+					defer recoverTo(&err, "")
+					ringQ := e.p.hp.RingQ().AtLevel(in.Level())
+					ringQ.DivRoundByLastModulusManyNTT(1, in.Value[i], l.scratchQ(e.p.hp), out.Value[i])
+					return nil
+				}()
+				if err != nil {
+					failed.Store(true)
+					q.fail(seq, 1+i, fmt.Errorf("op %d (%s): %w", seq, name(), err))
+				}
+				if left.Add(-1) == 0 {
+					if !failed.Load() {
+						res.ct = out
+					}
+					children[i].outs = []*Ciphertext{res}
+				}
+				return nil
+			}
+		}
+		return children
+	}
+	q.submit(parent, ct)
+	return res
 }
 
 // DropLevel lowers ct by n levels without dividing it (the scale stays).

@@ -10,7 +10,8 @@ import (
 
 // With several threads a lone rotation or relinearization is split into
 // tasks (keyswitch.go), a hoisted rotation's decomposition into two halves
-// of digits and a rotate-sum's basis change into one task per polynomial.
+// of digits, a rotate-sum's basis change and a rescale into one task per
+// polynomial.
 // The results must be the one-thread results bit for bit, for one, two and three special primes (one, two or three digits
 // fewer per key switch) and at every level, including levels whose
 // decomposition has a single digit, where the second half is empty.
@@ -37,6 +38,10 @@ func TestSplitKeySwitchBitIdentical(t *testing.T) {
 				sq := one.Mul(x, x)
 				wantRot, wantRel := one.Rotate(x, 5), one.Relinearize(sq)
 				wantHoist := one.RotateHoisted(x, 1, 5)
+				var wantRescale *Ciphertext
+				if level > 0 {
+					wantRescale = one.Rescale(one.Relinearize(sq))
+				}
 				wantSum := one.RotateSum([]*Ciphertext{x, x, x}, []int{0, 1, 5})
 				require.NoError(t, one.Err())
 				for _, threads := range []int{2, 3} {
@@ -46,7 +51,14 @@ func TestSplitKeySwitchBitIdentical(t *testing.T) {
 					chain := ev.Rotate(ev.Rotate(x, 1), 5) // a split switch reading another's result
 					gotHoist := ev.RotateHoisted(x, 1, 5)
 					gotSum := ev.RotateSum([]*Ciphertext{x, x, x}, []int{0, 1, 5})
+					var gotRescale *Ciphertext
+					if level > 0 {
+						gotRescale = ev.Rescale(ev.Relinearize(sq))
+					}
 					require.NoError(t, ev.Err(), "level %d, threads %d", level, threads)
+					if level > 0 {
+						require.Equal(t, ctBytes(t, wantRescale), ctBytes(t, gotRescale), "rescale, level %d, threads %d", level, threads)
+					}
 					for i := range wantHoist {
 						require.Equal(t, ctBytes(t, wantHoist[i]), ctBytes(t, gotHoist[i]), "hoisted %d, level %d, threads %d", i, level, threads)
 					}
