@@ -23,7 +23,7 @@
 //	params:                     # optional: pin CKKS parameters; each key optional
 //	  logN: 14                  # ring degree log2, 10..17
 //	  logQ: [50, 35, 35]        # bits of each ciphertext prime, q0 first, each 20..61
-//	  logP: [50]                # bits of each key-switching prime, each 20..61
+//	  logP: [50]                # bits of each key-switching prime, each 20..61 (unpinned: as many as make key switches cheapest)
 //	  logScale: 35              # log2 of the default scale, 16..60
 //	layers:                     # required, at least one, in evaluation order
 //	  - kind: dense
