@@ -24,7 +24,7 @@ import (
 // The gain counts the extra noise of layers folded after their rescale
 // (foldsAfterRescale, foldNoiseFactors).
 func chooseParams(s *State) error {
-	return setParams(s, s.Prog, foldsAfterRescale(s.Prog, s.Graph), noiseTerms(s.Graph))
+	return setParams(s, s.Prog, foldsAfterRescale(s.Prog, s.Graph), s.noise())
 }
 
 // setParams is chooseParams for program p with the given fold counts per
@@ -228,6 +228,16 @@ func levelsUsed(p *ir.Program) []int {
 // ring degree.
 func noiseGain(g *ir.Graph, factor []float64) float64 {
 	return weightedGain(noiseTerms(g), factor)
+}
+
+// noise is noiseTerms of the state's graph, measured once: the rescale
+// pass and params both read it, and the graph does not change after
+// lowering.
+func (s *State) noise() []float64 {
+	if s.noiseTerms == nil {
+		s.noiseTerms = noiseTerms(s.Graph)
+	}
+	return s.noiseTerms
 }
 
 // noiseTerms are the terms 2·g_k of noiseGain, k = 0 … len(g.Layers).

@@ -148,6 +148,8 @@ type State struct {
 	// exactly zero: set by the selection when it lowers a segment that
 	// reads what earlier layers made (knownZeros); nil otherwise.
 	inputZeros []bool
+	// noiseTerms caches noise() once the graph is final.
+	noiseTerms []float64
 }
 
 // profile is the cost model of this compilation, pricing key switches with

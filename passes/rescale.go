@@ -50,7 +50,7 @@ func foldFirstLayers(s *State) map[int]bool {
 	if len(allow) == 0 {
 		return allow
 	}
-	terms := noiseTerms(s.Graph)
+	terms := s.noise()
 	pin := s.Graph.Pin
 	params := func(folds []int) (ir.Params, error) {
 		q := *c

@@ -34,6 +34,17 @@ func (b *progBuilder) mul(x ir.ValueID) ir.ValueID {
 	return b.op(ir.OpMulPlain, []ir.ValueID{x}, nil, len(b.p.Consts)-1)
 }
 
+// opsOf lists p's ops of one kind.
+func opsOf(p *ir.Program, kind ir.OpKind) []*ir.Op {
+	var out []*ir.Op
+	for _, op := range p.Ops {
+		if op.Kind == kind {
+			out = append(out, op)
+		}
+	}
+	return out
+}
+
 func kinds(p *ir.Program) []ir.OpKind {
 	var out []ir.OpKind
 	for _, op := range p.Ops {
@@ -55,23 +66,12 @@ func TestMergeRotationSums(t *testing.T) {
 	out := b.add(shared, b.rot(b.mul(fold), 3))
 	b.op(ir.OpOutput, []ir.ValueID{out, shared}, nil, -1) // shared is read twice
 	mergeRotationSums(b.p)
-	var sums []*ir.Op
-	for _, op := range b.p.Ops {
-		if op.Kind == ir.OpRotSum {
-			sums = append(sums, op)
-		}
-	}
+	sums := opsOf(b.p, ir.OpRotSum)
 	require.Len(t, sums, 1, "%v", kinds(b.p))
 	require.Equal(t, []ir.ValueID{s0, s4, s8}, sums[0].Args, "the unrotated block stays whole, one term")
 	require.Equal(t, []int{0, 4, 8}, sums[0].Steps)
 	require.Equal(t, []ir.ValueID{acc}, sums[0].Results)
-	rotations := 0
-	for _, op := range b.p.Ops {
-		if op.Kind == ir.OpRotate {
-			rotations++
-		}
-	}
-	require.Equal(t, 3, rotations, "the fold, the shared rotation and the last one stay: %v", kinds(b.p))
+	require.Len(t, opsOf(b.p, ir.OpRotate), 3, "the fold, the shared rotation and the last one stay: %v", kinds(b.p))
 }
 
 // A sum whose leaves are all products read once becomes one dot; a sum
@@ -86,12 +86,7 @@ func TestFuseDots(t *testing.T) {
 	b.op(ir.OpOutput, []ir.ValueID{mixed, twice}, nil, -1)
 	consts := []int{b.p.Ops[1].Const, b.p.Ops[2].Const, b.p.Ops[3].Const}
 	fuseDots(b.p)
-	var dots []*ir.Op
-	for _, op := range b.p.Ops {
-		if op.Kind == ir.OpDot {
-			dots = append(dots, op)
-		}
-	}
+	dots := opsOf(b.p, ir.OpDot)
 	require.Len(t, dots, 1, "%v", kinds(b.p))
 	require.Equal(t, []ir.ValueID{x, x, x}, dots[0].Args)
 	require.Equal(t, consts, dots[0].Consts)

@@ -267,21 +267,30 @@ func (e *Evaluator) Rotate(ct *Ciphertext, step int) *Ciphertext {
 		}
 	}
 	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
-		if err := e.check(ct); err != nil {
-			return nil, err
-		}
-		if err := degreeOne(ct, "rotation"); err != nil {
-			return nil, err
-		}
 		k := e.p.normStep(step)
+		if err := e.rotateCheck(ct, k); err != nil {
+			return nil, err
+		}
 		if k == 0 {
 			return ct.ct.CopyNew(), nil
 		}
-		if err := e.rotationKey(k, ct.Level()); err != nil {
-			return nil, err
-		}
 		return l.ev.RotateNew(ct.ct, k)
 	})
+}
+
+// rotateCheck checks a rotation of ct by the normalised step k: a degree-1
+// ciphertext of these parameters and, for k ≠ 0, its key.
+func (e *Evaluator) rotateCheck(ct *Ciphertext, k int) error {
+	if err := e.check(ct); err != nil {
+		return err
+	}
+	if err := degreeOne(ct, "rotation"); err != nil {
+		return err
+	}
+	if k == 0 {
+		return nil
+	}
+	return e.rotationKey(k, ct.Level())
 }
 
 // RotateHoisted rotates ct left by each of steps, sharing one key-switch
@@ -458,10 +467,7 @@ func (e *Evaluator) decomposeTasks(l *lane, seq int, in *rlwe.Ciphertext, level,
 	left.Store(2)
 	halves := make([]*task, 2)
 	for h := range halves {
-		from, to := 0, (d+1)/2
-		if h == 1 {
-			from, to = to, d
-		}
+		from, to := digitHalf(d, h)
 		halves[h] = &task{seq: seq, sub: 1 + h, run: func(l *lane) []*task {
 			err := func() (err error) {
 				defer recoverTo(&err, "")
@@ -594,17 +600,26 @@ func (e *Evaluator) Relinearize(ct *Ciphertext) *Ciphertext {
 		return e.relinearizeSplit(ct, name)
 	}
 	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
-		if err := e.check(ct); err != nil {
+		if err := e.relinearizeCheck(ct); err != nil {
 			return nil, err
-		}
-		if ct.Degree() != 2 {
-			return nil, fmt.Errorf("relinearize needs a degree-2 ciphertext, got degree %d", ct.Degree())
-		}
-		if !e.keys.HasRelinearization() {
-			return nil, errors.New("no relinearization key loaded")
 		}
 		return l.ev.RelinearizeNew(ct.ct)
 	})
+}
+
+// relinearizeCheck checks a relinearization of ct: a degree-2 ciphertext
+// of these parameters, and the key.
+func (e *Evaluator) relinearizeCheck(ct *Ciphertext) error {
+	if err := e.check(ct); err != nil {
+		return err
+	}
+	if ct.Degree() != 2 {
+		return fmt.Errorf("relinearize needs a degree-2 ciphertext, got degree %d", ct.Degree())
+	}
+	if !e.keys.HasRelinearization() {
+		return errors.New("no relinearization key loaded")
+	}
+	return nil
 }
 
 // Rescale divides ct by q_level, the prime of its level, exactly: the level
@@ -618,11 +633,8 @@ func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
 		return e.rescaleSplit(ct, name)
 	}
 	return e.do(name, []*Ciphertext{ct}, func(l *lane) (*rlwe.Ciphertext, error) {
-		if err := e.check(ct); err != nil {
+		if err := e.rescaleCheck(ct); err != nil {
 			return nil, err
-		}
-		if ct.Level() < 1 {
-			return nil, errors.New("rescale needs level > 0, ciphertext is at level 0")
 		}
 		out := hefloat.NewCiphertext(e.p.hp, ct.Degree(), ct.Level()-1)
 		if err := l.ev.Rescale(ct.ct, out); err != nil {
@@ -630,6 +642,18 @@ func (e *Evaluator) Rescale(ct *Ciphertext) *Ciphertext {
 		}
 		return out, nil
 	})
+}
+
+// rescaleCheck checks a rescale of ct: a ciphertext of these parameters
+// above level 0.
+func (e *Evaluator) rescaleCheck(ct *Ciphertext) error {
+	if err := e.check(ct); err != nil {
+		return err
+	}
+	if ct.Level() < 1 {
+		return errors.New("rescale needs level > 0, ciphertext is at level 0")
+	}
+	return nil
 }
 
 // rescaleSplit is Rescale as pool tasks, one per polynomial of ct: each
@@ -644,11 +668,8 @@ func (e *Evaluator) rescaleSplit(ct *Ciphertext, name func() string) *Ciphertext
 		var out *rlwe.Ciphertext
 		err := func() (err error) {
 			defer recoverTo(&err, "")
-			if err := e.check(ct); err != nil {
+			if err := e.rescaleCheck(ct); err != nil {
 				return err
-			}
-			if ct.Level() < 1 {
-				return errors.New("rescale needs level > 0, ciphertext is at level 0")
 			}
 			in := ct.ct
 			out = hefloat.NewCiphertext(e.p.hp, in.Degree(), in.Level()-1)
@@ -663,9 +684,7 @@ func (e *Evaluator) rescaleSplit(ct *Ciphertext, name func() string) *Ciphertext
 		parent.outs = nil
 		in := ct.ct
 		children := make([]*task, len(in.Value))
-		var left atomic.Int32
-		var failed atomic.Bool
-		left.Store(int32(len(children)))
+		j := newJoin(len(children), res)
 		for i := range children {
 			children[i] = &task{seq: seq, sub: 1 + i}
 			children[i].run = func(l *lane) []*task {
@@ -676,15 +695,9 @@ func (e *Evaluator) rescaleSplit(ct *Ciphertext, name func() string) *Ciphertext
 					return nil
 				}()
 				if err != nil {
-					failed.Store(true)
 					q.fail(seq, 1+i, fmt.Errorf("op %d (%s): %w", seq, name(), err))
 				}
-				if left.Add(-1) == 0 {
-					if !failed.Load() {
-						res.ct = out
-					}
-					children[i].outs = []*Ciphertext{res}
-				}
+				j.done(children[i], err, out)
 				return nil
 			}
 		}

@@ -1,7 +1,6 @@
 package runtime
 
 import (
-	"errors"
 	"fmt"
 	"sync/atomic"
 
@@ -126,11 +125,7 @@ func (s *splitSwitch) digits() int {
 // key's and summed mod QP, reduced. The second half of a one-digit
 // decomposition is empty.
 func (s *splitSwitch) half(l *lane, h int) error {
-	d := s.digits()
-	from, to := 0, (d+1)/2
-	if h == 1 {
-		from, to = to, d
-	}
+	from, to := digitHalf(s.digits(), h)
 	if from == to {
 		return nil
 	}
@@ -186,6 +181,45 @@ func (s *splitSwitch) down(l *lane, i int) error {
 	return nil
 }
 
+// digitHalf is the range [from, to) of digits in half h (0 or 1) of a
+// decomposition of d digits; the second half of one digit is empty.
+func digitHalf(d, h int) (from, to int) {
+	if h == 0 {
+		return 0, (d + 1) / 2
+	}
+	return (d + 1) / 2, d
+}
+
+// join hands an op's result over from whichever of its n last tasks
+// finishes last: each calls done with its own task, and the last one sets
+// the result (unless one of them failed) and takes it as its output, so
+// that the pool resolves it only then.
+type join struct {
+	left   atomic.Int32
+	failed atomic.Bool
+	res    *Ciphertext
+}
+
+func newJoin(n int, res *Ciphertext) *join {
+	j := &join{res: res}
+	j.left.Store(int32(n))
+	return j
+}
+
+// done records that t finished (failed if err is not nil) and, for the
+// last of them, sets the result to out.
+func (j *join) done(t *task, err error, out *rlwe.Ciphertext) {
+	if err != nil {
+		j.failed.Store(true)
+	}
+	if j.left.Add(-1) == 0 {
+		if !j.failed.Load() {
+			j.res.ct = out
+		}
+		t.outs = []*Ciphertext{j.res}
+	}
+}
+
 // splits reports whether a key switch at this evaluator runs split: with a
 // pool of two threads or more.
 func (e *Evaluator) splits() bool { return e.pool != nil && e.pool.threads > 1 }
@@ -194,13 +228,7 @@ func (e *Evaluator) splits() bool { return e.pool != nil && e.pool.threads > 1 }
 func (e *Evaluator) rotateSplit(ct *Ciphertext, k int, name func() string) *Ciphertext {
 	s := &splitSwitch{e: e, ct: ct, c: 1, name: name, seq: e.ops}
 	s.check = func(l *lane) (*rlwe.GadgetCiphertext, func(int, ring.Poly, ring.Poly), error) {
-		if err := e.check(ct); err != nil {
-			return nil, nil, err
-		}
-		if err := degreeOne(ct, "rotation"); err != nil {
-			return nil, nil, err
-		}
-		if err := e.rotationKey(k, ct.Level()); err != nil {
+		if err := e.rotateCheck(ct, k); err != nil {
 			return nil, nil, err
 		}
 		galEl := e.p.hp.GaloisElement(k)
@@ -226,14 +254,8 @@ func (e *Evaluator) rotateSplit(ct *Ciphertext, k int, name func() string) *Ciph
 func (e *Evaluator) relinearizeSplit(ct *Ciphertext, name func() string) *Ciphertext {
 	s := &splitSwitch{e: e, ct: ct, c: 2, name: name, seq: e.ops}
 	s.check = func(l *lane) (*rlwe.GadgetCiphertext, func(int, ring.Poly, ring.Poly), error) {
-		if err := e.check(ct); err != nil {
+		if err := e.relinearizeCheck(ct); err != nil {
 			return nil, nil, err
-		}
-		if ct.Degree() != 2 {
-			return nil, nil, fmt.Errorf("relinearize needs a degree-2 ciphertext, got degree %d", ct.Degree())
-		}
-		if !e.keys.HasRelinearization() {
-			return nil, nil, errors.New("no relinearization key loaded")
 		}
 		rlk, err := l.ev.CheckAndGetRelinearizationKey()
 		if err != nil {

@@ -283,10 +283,9 @@ func (e *Evaluator) rotSumTasks(cts []*Ciphertext, steps []int, name func() stri
 			q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
 			return nil
 		}
-		var left atomic.Int32
-		left.Store(2)
 		combiner.outs = nil
 		polys := make([]*task, 2)
+		j := newJoin(len(polys), res)
 		for i := range polys {
 			polys[i] = &task{seq: seq, sub: len(cts) + 2 + i}
 			polys[i].run = func(l *lane) []*task {
@@ -296,15 +295,9 @@ func (e *Evaluator) rotSumTasks(cts []*Ciphertext, steps []int, name func() stri
 					return nil
 				}()
 				if err != nil {
-					failed.Store(true)
 					q.fail(seq, 0, fmt.Errorf("op %d (%s): %w", seq, name(), err))
 				}
-				if left.Add(-1) == 0 {
-					if !failed.Load() && err == nil {
-						res.ct = out
-					}
-					polys[i].outs = []*Ciphertext{res}
-				}
+				j.done(polys[i], err, out)
 				return nil
 			}
 		}
